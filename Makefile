@@ -1,0 +1,61 @@
+# Rotorbook: every target creates .venv on first use and installs what it needs.
+SHELL := /bin/bash
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed-stamp
+DEMO_DESIGNS := $(wildcard data/designs/*.toml)
+export ROTORBOOK_CACHE_DIR ?= $(CURDIR)/.cache/rotorbook
+
+.PHONY: demo test test-fast lint bench lab chromium snapshots outputs clean
+
+$(STAMP): pyproject.toml
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install -q --upgrade pip
+	$(PY) -m pip install -q -e '.[test]'
+	touch $(STAMP)
+
+# Debian's chromium for the browser tests; installed when missing and running as root (as CI does).
+chromium:
+	@if ! command -v chromium >/dev/null 2>&1; then \
+	  if [ "$$(id -u)" = 0 ]; then \
+	    echo "installing Debian chromium for the browser tests"; \
+	    apt-get update -q >/dev/null && DEBIAN_FRONTEND=noninteractive apt-get install -y -q chromium >/dev/null; \
+	  else echo "chromium is missing and this is not root: browser tests will be skipped"; fi; \
+	fi
+
+## make demo: record every demo design into records/ and print the index pages
+demo: $(STAMP)
+	$(VENV)/bin/rotorbook check $(DEMO_DESIGNS)
+	@for f in $(DEMO_DESIGNS); do \
+	  if [ -d kit/record ]; then $(VENV)/bin/rotorbook record $$f --out records/$$(basename $$f .toml) --force || exit 1; fi; \
+	done
+
+lint: $(STAMP)
+	$(PY) -m ruff check kit tests
+	$(PY) -W error -m compileall -q kit
+
+## make test: lint, unit/property/derivation tests, workbooks under nbval, browser tests
+test: $(STAMP) chromium lint
+	$(PY) -m pytest -n 2 --dist loadfile tests
+	@if ls workbooks/*.ipynb >/dev/null 2>&1; then \
+	  $(PY) -m pytest -p no:randomly --nbval workbooks --nbval-sanitize-with workbooks/sanitize.cfg -n 2 --dist loadfile; \
+	fi
+
+test-fast: $(STAMP)
+	$(PY) -m pytest -n 2 --dist loadfile -m "not slow" tests
+
+## make bench: speed and memory, as ratios measured in one run (never fails on time)
+bench: $(STAMP)
+	@for b in tests/bench/bench_*.py; do echo "== $$b"; $(PY) $$b || exit 1; done
+
+## make lab: JupyterLab on 127.0.0.1 over the workbooks
+lab: $(STAMP)
+	$(VENV)/bin/jupyter lab --ip=127.0.0.1 --no-browser workbooks
+
+## make snapshots: rewrite the derivation snapshots (commit on its own, saying why)
+snapshots: $(STAMP)
+	$(PY) -m kit.symbolic.snapshots --refresh
+
+clean:
+	rm -rf records .cache .pytest_cache .hypothesis

@@ -1,0 +1,210 @@
+"""The ``rotorbook`` command: check, equations, analyze, record, new.
+
+Every sub-command is a thin face over the kit's functions. Bad input ends with one line per
+problem on stderr and exit status 2; no traceback unless ``--debug`` is given.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import warnings
+from pathlib import Path
+
+from kit import __version__
+from kit.errors import DesignError, DesignWarning, RecordError, RotorbookError
+
+EXIT_OK = 0
+EXIT_FAILED = 1
+EXIT_BAD_INPUT = 2
+
+
+def _load_with_warnings(path: str):
+    """Load a design and its mass properties; return (design, massprops, warning lines).
+
+    The warnings are returned as text (shown once by the caller), not emitted.
+    """
+    from kit import design as design_mod
+    from kit import massprops
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DesignWarning)
+        d = design_mod.load(path)
+    mp = massprops.compute(d)
+    return d, mp, list(d.warnings) + list(mp.warnings)
+
+
+def _fmt_vec(v, digits=4) -> str:
+    return "[" + ", ".join(f"{x + 0.0:.{digits}g}" for x in v) + "]"
+
+
+def check_summary(d, mp) -> str:
+    """Short text summary of a valid design (``rotorbook check``)."""
+    lines = [
+        f"{d.name} (revision {d.revision})  sha256 {d.sha256[:12]}",
+        f"  mass            {mp.mass_kg:.4g} kg",
+        f"  CoM             {_fmt_vec(mp.com_m)} m (design frame)",
+        "  inertia about CoM (kg m^2, rotor spin inertia included):",
+    ]
+    lines += ["    " + _fmt_vec(row, 5) for row in mp.inertia_kg_m2]
+    lines.append(f"  principal moments {_fmt_vec(mp.principal_moments_kg_m2, 5)} kg m^2")
+    lines.append(f"  rotors ({len(d.rotors)}), hubs about the CoM:")
+    for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True):
+        spin = "ccw" if r.spin > 0 else "cw"
+        lines.append(f"    {r.name:<14} {_fmt_vec(pos)} m  {spin:<3}  max {r.max_thrust_n:g} N")
+    if d.wheel is not None:
+        lines.append(
+            f"  wheel           h_max {d.wheel.max_momentum_n_m_s:.4g} N m s "
+            f"({d.wheel.inertia_kg_m2:g} kg m^2 x {d.wheel.max_speed_rad_s:g} rad/s)"
+        )
+    lines.append(f"  failure cases   {len(d.failure_cases)} listed; review sets: "
+                 f"{d.review.failure_sets}")
+    return "\n".join(lines)
+
+
+def check_record(path: str) -> dict:
+    """The JSON object of ``rotorbook check --json`` for one file."""
+    try:
+        d, mp, warns = _load_with_warnings(path)
+    except DesignError as exc:
+        return {"file": path, "design": None, "mass_properties": None, "rotors": [],
+                "errors": exc.problems, "warnings": []}
+    return {
+        "file": path,
+        "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
+        "mass_properties": mp.to_dict(),
+        "rotors": [
+            {"name": r.name, "position_m": [float(x) for x in pos],
+             "spin": "ccw" if r.spin > 0 else "cw"}
+            for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True)
+        ],
+        "errors": [],
+        "warnings": warns,
+    }
+
+
+def cmd_check(args) -> int:
+    records = [check_record(p) for p in args.files]
+    if args.json:
+        json.dump(records, sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        for rec in records:
+            if rec["errors"]:
+                print(f"{rec['file']}: INVALID, {len(rec['errors'])} problem(s)", file=sys.stderr)
+                for line in rec["errors"]:
+                    print(f"  {rec['file']}: {line}", file=sys.stderr)
+            else:
+                d, mp, _ = _load_with_warnings(rec["file"])
+                print(f"{rec['file']}: valid")
+                print(check_summary(d, mp))
+                for w in rec["warnings"]:
+                    print(f"  warning: {w}")
+    return EXIT_OK if all(not r["errors"] for r in records) else EXIT_BAD_INPUT
+
+
+def cmd_equations(args) -> int:
+    from kit.design import load
+    from kit.symbolic.display import equations_text
+    from kit.symbolic.structure import Structure
+
+    d = load(args.file)
+    st = Structure(n_rotors=len(d.rotors), wheel=d.wheel is not None, drag_law=d.aero.drag_law)
+    print(equations_text(st, latex=args.latex))
+    return EXIT_OK
+
+
+def cmd_analyze(args) -> int:
+    from kit.analysis.report import analyze_file
+
+    report = analyze_file(args.file, progress=not args.json)
+    if args.json:
+        json.dump(report.to_dict(), sys.stdout, indent=1)
+        sys.stdout.write("\n")
+    else:
+        print(report.summary_text())
+    return EXIT_OK
+
+
+def cmd_record(args) -> int:
+    from kit.record.render import record_design
+
+    result = record_design(args.design, workbooks=args.workbooks, out_dir=args.out,
+                           force=args.force)
+    for line in result.lines():
+        print(line)
+    return EXIT_OK if result.ok else EXIT_FAILED
+
+
+def cmd_new(args) -> int:
+    from kit.record.render import new_folder
+
+    folder = new_folder(args.dir, args.design)
+    print(f"workbook folder ready: {folder}")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="rotorbook",
+        description="Multirotor attitude dynamics: design checks, derivations, analyses, records.",
+    )
+    p.add_argument("--version", action="version", version=f"rotorbook {__version__}")
+    p.add_argument("--debug", action="store_true", help="show tracebacks")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    c = sub.add_parser("check", help="validate design files and summarise mass properties")
+    c.add_argument("files", nargs="+", metavar="FILE")
+    c.add_argument("--json", action="store_true", help="JSON list on stdout")
+    c.set_defaults(func=cmd_check)
+
+    e = sub.add_parser("equations", help="print the derived equations for a design's structure")
+    e.add_argument("file", metavar="FILE")
+    e.add_argument("--latex", action="store_true", help="LaTeX instead of plain text")
+    e.set_defaults(func=cmd_equations)
+
+    a = sub.add_parser("analyze", help="hover, failure cases, control, risk, wheel, checks")
+    a.add_argument("file", metavar="FILE")
+    a.add_argument("--json", action="store_true", help="JSON (schema rotorbook.analysis/1)")
+    a.set_defaults(func=cmd_analyze)
+
+    r = sub.add_parser("record", help="execute the workbooks for a design into HTML records")
+    r.add_argument("design", metavar="DESIGN")
+    r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
+                   help="workbook names (default: all templates)")
+    r.add_argument("--out", default="records", metavar="DIR", help="output folder")
+    r.add_argument("--force", action="store_true", help="replace existing records")
+    r.set_defaults(func=cmd_record)
+
+    n = sub.add_parser("new", help="a per-design folder with the workbooks pointed at it")
+    n.add_argument("dir", metavar="DIR")
+    n.add_argument("--from", dest="design", required=True, metavar="DESIGN")
+    n.set_defaults(func=cmd_new)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except DesignError as exc:
+        if args.debug:
+            raise
+        where = exc.path or "design"
+        for line in exc.problems:
+            print(f"{where}: {line}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except (RecordError, RotorbookError) as exc:
+        if args.debug:
+            raise
+        print(f"rotorbook: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT if isinstance(exc, RecordError) else EXIT_FAILED
+    except KeyboardInterrupt:  # pragma: no cover
+        print("rotorbook: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

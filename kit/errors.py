@@ -1,0 +1,37 @@
+"""The kit's exception and warning classes, all in one place."""
+
+
+class RotorbookError(Exception):
+    """Base class of every error the kit raises on purpose."""
+
+
+class DesignError(RotorbookError, ValueError):
+    """A design file is missing, malformed or physically impossible.
+
+    ``problems`` lists every problem found, one line each, as
+    ``field path: bad value -> what is allowed``.
+    """
+
+    def __init__(self, problems, path=None):
+        if isinstance(problems, str):
+            problems = [problems]
+        self.problems = list(problems)
+        self.path = path
+        where = f"{path}: " if path else ""
+        super().__init__(where + "; ".join(self.problems))
+
+
+class EquilibriumNotFound(RotorbookError):
+    """No relaxed-hover equilibrium satisfies the equations within the thrust limits."""
+
+
+class RecordError(RotorbookError):
+    """A calculation record could not be written (existing file, failed workbook, bad option)."""
+
+
+class DesignWarning(UserWarning):
+    """A design file is valid but something in it deserves a second look."""
+
+
+class CacheWarning(UserWarning):
+    """A cached generated module was stale or corrupt and has been rebuilt."""

@@ -63,14 +63,14 @@ def check_summary(d, mp) -> str:
     return "\n".join(lines)
 
 
-def check_record(path: str) -> dict:
-    """The JSON object of ``rotorbook check --json`` for one file."""
+def _check_one(path: str) -> tuple[dict, str | None]:
+    """Check one design file: its ``--json`` object and, when valid, its text summary."""
     try:
         d, mp, warns = _load_with_warnings(path)
     except DesignError as exc:
         return {"file": path, "design": None, "mass_properties": None, "rotors": [],
-                "errors": exc.problems, "warnings": []}
-    return {
+                "errors": list(exc.problems), "warnings": []}, None
+    record = {
         "file": path,
         "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
         "mass_properties": mp.to_dict(),
@@ -82,23 +82,29 @@ def check_record(path: str) -> dict:
         "errors": [],
         "warnings": warns,
     }
+    return record, check_summary(d, mp)
+
+
+def check_record(path: str) -> dict:
+    """The JSON object of ``rotorbook check --json`` for one file."""
+    return _check_one(path)[0]
 
 
 def cmd_check(args) -> int:
-    records = [check_record(p) for p in args.files]
+    """Validate each file; invalid ones print one line per problem on stderr (exit 2)."""
+    checked = [_check_one(p) for p in args.files]
+    records = [rec for rec, _ in checked]
     if args.json:
         json.dump(records, sys.stdout, indent=2)
         sys.stdout.write("\n")
     else:
-        for rec in records:
+        for rec, summary in checked:
             if rec["errors"]:
-                print(f"{rec['file']}: INVALID, {len(rec['errors'])} problem(s)", file=sys.stderr)
                 for line in rec["errors"]:
-                    print(f"  {rec['file']}: {line}", file=sys.stderr)
+                    print(f"{rec['file']}: {line}", file=sys.stderr)
             else:
-                d, mp, _ = _load_with_warnings(rec["file"])
                 print(f"{rec['file']}: valid")
-                print(check_summary(d, mp))
+                print(summary)
                 for w in rec["warnings"]:
                     print(f"  warning: {w}")
     return EXIT_OK if all(not r["errors"] for r in records) else EXIT_BAD_INPUT

@@ -1,0 +1,419 @@
+r"""Relaxed-hover equilibria: constant spin about the world-up direction with constant thrusts.
+
+With ``omega = w n`` (spin parallel to world-up ``n`` seen in the body), the attitude is
+stationary (``n_dot = -omega x n = 0``) and the vehicle holds its height when
+
+.. math::
+
+    \sum_i \mathbf r_i \times f_i \mathbf e_z - \sum_i s_i \kappa_i f_i \mathbf e_z
+    + \boldsymbol\tau_d(\boldsymbol\omega)
+    - \boldsymbol\omega \times \Big(\mathbf J \boldsymbol\omega
+      + \sum_i s_i I_{P,i} \sqrt{f_i / k_{f,i}}\, \mathbf e_z + h\, \mathbf e_z\Big) = 0,
+    \qquad n_z \sum_i f_i = m g .
+
+Four equations in ``w, n_x, n_y`` and the ``k`` working thrusts leave ``k - 1`` free directions.
+The default member minimises ``sum f_i^2`` within ``0 <= f_i <= f_max,i`` (least effort); a
+failure case may fix the thrust ratios instead, which leaves a square system. Both spin senses
+are searched (``w >= 0`` and ``w <= 0``). The residual is scaled: moments by ``m g l`` (``l``
+the largest hub distance), the force by ``m g``.
+
+References
+----------
+M. W. Mueller and R. D'Andrea, "Stability and control of a quadrocopter despite the complete
+loss of one, two, or three propellers", IEEE ICRA 2014, sec. III (relaxed hover solutions;
+from memory). Nocedal & Wright, Numerical Optimization, 2nd ed., ch. 18 (SQP; from memory).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import OptimizeWarning, minimize
+
+from kit.analysis.vehicle import Vehicle
+from kit.design import FailureCase
+
+#: Largest spin rate searched, rad/s.
+MAX_SPIN_RAD_S = 250.0
+#: Scaled residual below which a point counts as an equilibrium.
+RESIDUAL_TOL = 1e-9
+#: Largest tilt of the spin axis from body z searched (n_z >= cos of it).
+MAX_TILT_RAD = math.radians(75.0)
+
+
+@dataclass(frozen=True)
+class Equilibrium:
+    """One relaxed-hover equilibrium (or the reason none was found).
+
+    Attributes
+    ----------
+    failed : tuple of str
+        Failed rotors; ``()`` is the no-failure case.
+    thrust_ratio : dict or None
+        Ratios as given in the design (None: least-effort member).
+    found : bool
+    reason : str
+        Why no equilibrium was found (empty when found).
+    free_directions : int
+        ``k - 1`` for the least-effort family, 0 when ratios are fixed.
+    thrust_n : ndarray (N,)
+        All rotors' thrusts, zero for failed ones, in N.
+    omega_bar_rad_s : ndarray (3,)
+        Body angular velocity, in rad/s.
+    n_bar : ndarray (3,)
+        World-up unit vector in body axes.
+    spin_rate_rad_s : float
+        Signed spin rate w about n_bar (omega = w n), in rad/s.
+    residual : float
+        Largest scaled residual.
+    """
+
+    failed: tuple[str, ...]
+    thrust_ratio: dict | None
+    found: bool
+    reason: str
+    free_directions: int
+    names: tuple[str, ...]
+    thrust_n: np.ndarray
+    max_thrust_n: np.ndarray
+    omega_bar_rad_s: np.ndarray
+    n_bar: np.ndarray
+    spin_rate_rad_s: float
+    residual: float
+    rotor_speed_rad_s: np.ndarray
+    circle_radius_m: float
+    mass_kg: float
+    wheel_momentum_n_m_s: float = 0.0
+    other_sense: tuple | None = None
+
+    @property
+    def working(self) -> np.ndarray:
+        return np.array([n not in self.failed for n in self.names])
+
+    @property
+    def tilt_deg(self) -> float:
+        """Angle between the spin axis (world up) and body z, in degrees."""
+        return math.degrees(math.acos(max(-1.0, min(1.0, float(self.n_bar[2])))))
+
+    @property
+    def thrust_fraction(self) -> np.ndarray:
+        return self.thrust_n / self.max_thrust_n
+
+    @property
+    def label(self) -> str:
+        base = "no failure" if not self.failed else "failed: " + ", ".join(self.failed)
+        if self.thrust_ratio:
+            base += " (thrust ratio " + ", ".join(f"{k}={v:g}" for k, v in
+                                                  self.thrust_ratio.items()) + ")"
+        return base
+
+    def to_dict(self) -> dict:
+        return {
+            "failed": list(self.failed),
+            "thrust_ratio": None if self.thrust_ratio is None else dict(self.thrust_ratio),
+            "equilibrium_found": self.found,
+            "reason": self.reason,
+            "free_directions": self.free_directions,
+            "thrust_n": {n: float(f) for n, f in zip(self.names, self.thrust_n, strict=True)},
+            "rotor_speed_rad_s": {n: float(f) for n, f in
+                                  zip(self.names, self.rotor_speed_rad_s, strict=True)},
+            "omega_bar_rad_s": [float(v) for v in self.omega_bar_rad_s],
+            "n_bar": [float(v) for v in self.n_bar],
+            "spin_rate_rad_s": float(self.spin_rate_rad_s),
+            "tilt_deg": float(self.tilt_deg),
+            "circle_radius_m": float(self.circle_radius_m),
+            "scaled_residual": float(self.residual),
+            "wheel_momentum_n_m_s": float(self.wheel_momentum_n_m_s),
+        }
+
+    def _repr_html_(self) -> str:
+        from kit.analysis.htmltable import equilibrium_html
+
+        return equilibrium_html(self)
+
+
+class _Problem:
+    """The scaled equations for one vehicle and failure set."""
+
+    def __init__(self, veh: Vehicle, failed) -> None:
+        self.veh = veh
+        self.model = veh.model
+        self.work = veh.working_mask(failed)
+        self.idx = np.flatnonzero(self.work)
+        self.k = len(self.idx)
+        self.mg = veh.weight_n
+        self.f_s = self.mg / max(self.k, 1)
+        self.w_s = 10.0
+        self.scale = np.array([1 / (self.mg * veh.arm_m)] * 3 + [1 / self.mg])
+        self.par = veh.par
+        self.cols = np.r_[0, 1, 2, 3 + self.idx]
+
+    def full_z(self, v: np.ndarray) -> np.ndarray:
+        z = np.zeros(3 + self.veh.n)
+        z[0] = v[0] * self.w_s
+        z[1], z[2] = v[1], v[2]
+        z[3 + self.idx] = v[3:] * self.f_s
+        return z
+
+    def residual(self, v: np.ndarray) -> np.ndarray:
+        return self.model.eq_residual(self.full_z(v), self.par) * self.scale
+
+    def jacobian(self, v: np.ndarray) -> np.ndarray:
+        Jz = self.model.eq_jacobian(self.full_z(v), self.par)[:, self.cols]
+        Jz = Jz * np.r_[self.w_s, 1.0, 1.0, np.full(self.k, self.f_s)][None, :]
+        return Jz * self.scale[:, None]
+
+
+def _make(veh, failed, ratio, found, reason, z=None, residual=math.inf, other=None):
+    n = veh.n
+    if z is None:
+        z = np.full(3 + n, np.nan)
+    w, nx, ny = z[0], z[1], z[2]
+    nz = math.sqrt(max(0.0, 1.0 - nx * nx - ny * ny)) if found else math.nan
+    n_bar = np.array([nx, ny, nz])
+    f = z[3:].copy()
+    if found:
+        f[~veh.working_mask(failed)] = 0.0
+    # CoM circle: horizontal thrust component m v^2 / R = T sin(tilt), v = w R -> R = T s/(m w^2)
+    radius = math.nan
+    if found:
+        horiz = float(np.sum(f)) * math.sqrt(max(0.0, 1.0 - nz * nz))
+        radius = 0.0 if horiz < 1e-12 else horiz / (veh.mp.mass_kg * w * w) if w != 0 else math.inf
+    return Equilibrium(
+        failed=tuple(failed), thrust_ratio=ratio, found=found, reason=reason,
+        free_directions=0 if ratio else max(int(veh.working_mask(failed).sum()) - 1, 0),
+        names=veh.names, thrust_n=f, max_thrust_n=veh.max_thrust_n,
+        omega_bar_rad_s=w * n_bar, n_bar=n_bar, spin_rate_rad_s=float(w),
+        residual=float(residual), rotor_speed_rad_s=veh.rotor_speed_rad_s(np.nan_to_num(f)),
+        circle_radius_m=radius, mass_kg=veh.mp.mass_kg,
+        wheel_momentum_n_m_s=veh.wheel_momentum_n_m_s, other_sense=other,
+    )
+
+
+def _spin_guess(veh: Vehicle, prob: _Problem) -> float:
+    """Spin-rate scale from the yaw balance kappa * m g ~ drag(w), in rad/s."""
+    kappa = float(np.mean(veh.kappa[prob.idx]))
+    gz = max(veh.design.aero.drag_torque_coeff[2], 1e-9)
+    if veh.design.aero.drag_law == "linear":
+        w = kappa * veh.weight_n / gz
+    else:
+        w = math.sqrt(kappa * veh.weight_n / gz)
+    return float(min(max(w, 1.0), MAX_SPIN_RAD_S * 0.8))
+
+
+def _polish(prob: _Problem, v: np.ndarray, fix_w: bool = False) -> tuple[np.ndarray, float]:
+    """Newton steps on the square system with the thrust ratios of ``v`` fixed."""
+    ratio = v[3:].copy()
+    t = 1.0
+    u = np.array([v[0], v[1], v[2], t])
+
+    def build(u):
+        return np.r_[u[0], u[1], u[2], ratio * u[3]]
+
+    best = (v, float(np.max(np.abs(prob.residual(v)))))
+    for _ in range(8):
+        vv = build(u)
+        r = prob.residual(vv)
+        res = float(np.max(np.abs(r)))
+        if res < best[1]:
+            best = (vv, res)
+        if res < 1e-14:
+            break
+        Jv = prob.jacobian(vv)
+        Ju = np.column_stack([Jv[:, 0], Jv[:, 1], Jv[:, 2], Jv[:, 3:] @ ratio])
+        if fix_w:
+            Ju[:, 0] = 0.0
+        if not np.all(np.isfinite(Ju)):
+            break
+        try:
+            du = np.linalg.lstsq(Ju, -r, rcond=None)[0]
+        except np.linalg.LinAlgError:
+            break
+        u = u + du
+    return best
+
+
+def _least_effort(prob: _Problem, veh: Vehicle, sense: int, starts) -> tuple | None:
+    k = prob.k
+    fmax = veh.max_thrust_n[prob.idx] / prob.f_s
+    lo = 1e-4
+    wmax = MAX_SPIN_RAD_S / prob.w_s
+    wb = (0.0, wmax) if sense > 0 else (-wmax, 0.0)
+    smax = math.sin(MAX_TILT_RAD)
+    bounds = [wb, (-smax, smax), (-smax, smax)] + [(lo, fm) for fm in fmax]
+    cons = [
+        {"type": "eq", "fun": prob.residual, "jac": prob.jacobian},
+        {"type": "ineq", "fun": lambda v: smax**2 - v[1] ** 2 - v[2] ** 2,
+         "jac": lambda v: np.r_[0.0, -2 * v[1], -2 * v[2], np.zeros(k)]},
+    ]
+    best = None
+    for w0, n0 in starts:
+        f0 = np.clip(np.full(k, 1.0 / max(n0[2], 0.3)), lo, fmax)
+        v0 = np.r_[sense * abs(w0) / prob.w_s, n0[0], n0[1], f0]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", (RuntimeWarning, OptimizeWarning))
+            sol = minimize(lambda v: float(v[3:] @ v[3:]), v0,
+                           jac=lambda v: np.r_[0.0, 0.0, 0.0, 2 * v[3:]],
+                           bounds=bounds, constraints=cons, method="SLSQP",
+                           options={"maxiter": 300, "ftol": 1e-13})
+        v = sol.x
+        if not np.all(np.isfinite(v)):
+            continue
+        v, res = _polish(prob, v)
+        if res > RESIDUAL_TOL or np.any(v[3:] < -1e-12) or np.any(v[3:] > fmax * (1 + 1e-9)):
+            continue
+        cost = float(v[3:] @ v[3:])
+        if best is None or cost < best[0] - 1e-10:
+            best = (cost, v, res)
+    return best
+
+
+def _fixed_ratio(prob: _Problem, veh: Vehicle, ratio: dict, sense: int, starts) -> tuple | None:
+    r = np.array([ratio[veh.names[i]] for i in prob.idx], float)
+    r = r / r.sum() * prob.k  # mean 1, so t ~ 1 / n_z
+    fmax = veh.max_thrust_n[prob.idx] / prob.f_s
+    best = None
+    for w0, n0 in starts:
+        v = np.r_[sense * abs(w0) / prob.w_s, n0[0], n0[1], r / max(n0[2], 0.3)]
+        v, res = _polish_ratio(prob, v, r)
+        if res > RESIDUAL_TOL or sense * v[0] < -1e-12:
+            continue
+        if v[1] ** 2 + v[2] ** 2 >= 1.0:
+            continue
+        if np.any(v[3:] < 0) or np.any(v[3:] > fmax * (1 + 1e-9)):
+            continue
+        cost = float(v[3:] @ v[3:])
+        if best is None or cost < best[0] - 1e-10:
+            best = (cost, v, res)
+    return best
+
+
+def _polish_ratio(prob: _Problem, v: np.ndarray, ratio: np.ndarray) -> tuple[np.ndarray, float]:
+    """Damped Newton on (w, nx, ny, t) with f = t * ratio."""
+    u = np.array([v[0], v[1], v[2], float(v[3] / ratio[0]) if ratio[0] else 1.0])
+
+    def build(u):
+        return np.r_[u[0], u[1], u[2], ratio * u[3]]
+
+    best = (build(u), math.inf)
+    for _ in range(60):
+        vv = build(u)
+        if vv[1] ** 2 + vv[2] ** 2 >= 0.999:
+            break
+        r = prob.residual(vv)
+        res = float(np.max(np.abs(r)))
+        if res < best[1]:
+            best = (vv, res)
+        if res < 1e-14:
+            break
+        Jv = prob.jacobian(vv)
+        Ju = np.column_stack([Jv[:, 0], Jv[:, 1], Jv[:, 2], Jv[:, 3:] @ ratio])
+        if not np.all(np.isfinite(Ju)):
+            break
+        du = np.linalg.lstsq(Ju, -r, rcond=None)[0]
+        step = 1.0
+        for _ in range(20):
+            un = u + step * du
+            vn = build(un)
+            if vn[1] ** 2 + vn[2] ** 2 < 0.999 and un[3] > 0:
+                rn = float(np.max(np.abs(prob.residual(vn))))
+                if rn < res:
+                    break
+            step *= 0.5
+        u = u + step * du
+    return best
+
+
+def _starts(veh: Vehicle, prob: _Problem, hint=None) -> list:
+    w = _spin_guess(veh, prob)
+    starts = []
+    if hint is not None:
+        starts.append(hint)
+    tilt = 0.3
+    starts.append((w, np.array([0.0, 0.0, 1.0])))
+    # tilt the start towards the centroid of the failed rotors' opposite side
+    pos = veh.mp.rotor_positions_m[:, :2]
+    c = pos[prob.idx].mean(axis=0)
+    if np.linalg.norm(c) > 1e-9:
+        d = c / np.linalg.norm(c)
+        for a in (tilt, 0.6):
+            for sgn in (1.0, -1.0):
+                nx, ny = sgn * math.sin(a) * d[0], sgn * math.sin(a) * d[1]
+                starts.append((w, np.array([nx, ny, math.sqrt(1 - nx * nx - ny * ny)])))
+    starts.append((2.0 * w, np.array([0.0, 0.0, 1.0])))
+    starts.append((0.3 * w, np.array([0.0, 0.0, 1.0])))
+    return starts
+
+
+def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None) -> Equilibrium:
+    """The relaxed-hover equilibrium of a vehicle with the given rotors failed.
+
+    Parameters
+    ----------
+    veh : Vehicle
+    failed : sequence of str
+        Names of failed rotors.
+    thrust_ratio : dict or None
+        ``{name: ratio}`` over every working rotor, or None for the least-effort member.
+    hint : (w_rad_s, n_bar) or None
+        A starting point (e.g. the neighbouring point of a sweep).
+
+    Returns
+    -------
+    Equilibrium
+        ``found`` False with a ``reason`` when none lies within the thrust limits.
+    """
+    failed = tuple(failed)
+    prob = _Problem(veh, failed)
+    if prob.k == 0:
+        return _make(veh, failed, thrust_ratio, False, "every rotor has failed")
+    starts = _starts(veh, prob, hint)
+    found = {}
+    for sense in (1, -1):
+        if thrust_ratio:
+            found[sense] = _fixed_ratio(prob, veh, thrust_ratio, sense, starts)
+        else:
+            found[sense] = _least_effort(prob, veh, sense, starts)
+    cands = [(b[0], s, b) for s, b in found.items() if b is not None]
+    if not cands:
+        why = ("no equilibrium within the thrust limits 0..max_thrust_n for these thrust ratios"
+               if thrust_ratio else
+               "no equilibrium within the thrust limits 0..max_thrust_n (spin rates up to "
+               f"{MAX_SPIN_RAD_S:g} rad/s and spin-axis tilts up to "
+               f"{math.degrees(MAX_TILT_RAD):g} deg searched, both senses)")
+        return _make(veh, failed, thrust_ratio, False, why)
+    cands.sort(key=lambda c: (round(c[0], 9), -c[1]))
+    cost, sense, (c, v, res) = cands[0]
+    other = None
+    if len(cands) > 1:
+        ov = cands[1][2][1]
+        other = (float(ov[0] * prob.w_s), float(cands[1][2][0]))
+    return _make(veh, failed, thrust_ratio, True, "", prob.full_z(v), res, other)
+
+
+def failure_sets(veh: Vehicle) -> list[tuple[str, ...]]:
+    """The failure sets named by ``review.failure_sets``, in file order."""
+    names = veh.names
+    mode = veh.design.review.failure_sets
+    out: list[tuple[str, ...]] = []
+    if mode in ("single", "single+pairs"):
+        out += [(n,) for n in names]
+    if mode in ("pairs", "single+pairs"):
+        out += [(a, b) for i, a in enumerate(names) for b in names[i + 1:]]
+    return out
+
+
+def all_cases(veh: Vehicle) -> list[tuple[tuple[str, ...], dict | None]]:
+    """No-failure case, the review's failure sets, then the design's failure cases."""
+    cases: list[tuple[tuple[str, ...], dict | None]] = [((), None)]
+    cases += [(s, None) for s in failure_sets(veh)]
+    fc: FailureCase
+    for fc in veh.design.failure_cases:
+        key = (tuple(fc.failed), fc.ratio_dict())
+        same = [c for c in cases if set(c[0]) == set(key[0]) and c[1] == key[1]]
+        if not same:
+            cases.append(key)
+    return cases

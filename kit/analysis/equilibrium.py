@@ -204,7 +204,7 @@ def _spin_guess(veh: Vehicle, prob: _Problem) -> float:
     return float(min(max(w, 1.0), MAX_SPIN_RAD_S * 0.8))
 
 
-def _polish(prob: _Problem, v: np.ndarray, fix_w: bool = False) -> tuple[np.ndarray, float]:
+def _polish(prob: _Problem, v: np.ndarray) -> tuple[np.ndarray, float]:
     """Newton steps on the square system with the thrust ratios of ``v`` fixed."""
     ratio = v[3:].copy()
     t = 1.0
@@ -224,8 +224,6 @@ def _polish(prob: _Problem, v: np.ndarray, fix_w: bool = False) -> tuple[np.ndar
             break
         Jv = prob.jacobian(vv)
         Ju = np.column_stack([Jv[:, 0], Jv[:, 1], Jv[:, 2], Jv[:, 3:] @ ratio])
-        if fix_w:
-            Ju[:, 0] = 0.0
         if not np.all(np.isfinite(Ju)):
             break
         try:
@@ -327,11 +325,9 @@ def _polish_ratio(prob: _Problem, v: np.ndarray, ratio: np.ndarray) -> tuple[np.
     return best
 
 
-def _starts(veh: Vehicle, prob: _Problem, hint=None) -> list:
+def _starts(veh: Vehicle, prob: _Problem) -> list:
     w = _spin_guess(veh, prob)
     starts = []
-    if hint is not None:
-        starts.append(hint)
     tilt = 0.3
     starts.append((w, np.array([0.0, 0.0, 1.0])))
     # tilt the start towards the centroid of the failed rotors' opposite side
@@ -370,14 +366,18 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None) 
     prob = _Problem(veh, failed)
     if prob.k == 0:
         return _make(veh, failed, thrust_ratio, False, "every rotor has failed")
-    starts = _starts(veh, prob, hint)
-    found = {}
-    for sense in (1, -1):
-        if thrust_ratio:
-            found[sense] = _fixed_ratio(prob, veh, thrust_ratio, sense, starts)
-        else:
-            found[sense] = _least_effort(prob, veh, sense, starts)
-    cands = [(b[0], s, b) for s, b in found.items() if b is not None]
+    cands = []
+    # a hint (continuation along a sweep) is tried alone first; the full set of starts after
+    for starts in ([[hint]] if hint is not None else []) + [_starts(veh, prob)]:
+        for sense in (1, -1):
+            if thrust_ratio:
+                best = _fixed_ratio(prob, veh, thrust_ratio, sense, starts)
+            else:
+                best = _least_effort(prob, veh, sense, starts)
+            if best is not None:
+                cands.append((best[0], sense, best))
+        if cands:
+            break
     if not cands:
         why = ("no equilibrium within the thrust limits 0..max_thrust_n for these thrust ratios"
                if thrust_ratio else

@@ -1,0 +1,80 @@
+"""Design checks: each figure of the review against its threshold, as one pass/fail table.
+
+Thresholds come from the design's ``[review]`` table (defaults: common practice, no source).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+#: Smallest thrust margin (1 - f / f_max) of the busiest rotor in a failure case (common
+#: practice, no source): room for the controller to act.
+MIN_FAILURE_THRUST_MARGIN = 0.05
+
+
+@dataclass(frozen=True)
+class Check:
+    """One design check: ``passed`` is ``value`` compared with ``limit`` by ``relation``."""
+
+    name: str
+    value: float | bool | None
+    limit: float | bool | None
+    passed: bool
+    unit: str = ""
+    case: str = ""
+    relation: str = ""
+
+    def to_dict(self) -> dict:
+        def clean(v):
+            if isinstance(v, bool) or v is None:
+                return v
+            return float(v) if math.isfinite(v) else None
+
+        return {"name": self.name, "value": clean(self.value), "limit": clean(self.limit),
+                "passed": bool(self.passed), "unit": self.unit, "case": self.case,
+                "relation": self.relation}
+
+
+def at_least(name, value, limit, unit="", case="") -> Check:
+    ok = value is not None and math.isfinite(value) and value >= limit
+    return Check(name, value, limit, bool(ok), unit, case, ">=")
+
+
+def at_most(name, value, limit, unit="", case="") -> Check:
+    ok = value is not None and math.isfinite(value) and value <= limit
+    return Check(name, value, limit, bool(ok), unit, case, "<=")
+
+
+def is_true(name, value: bool, case="") -> Check:
+    return Check(name, bool(value), True, bool(value), "", case, "==")
+
+
+def hover_checks(hover, review) -> list[Check]:
+    return [
+        at_least("thrust-to-weight", hover.thrust_to_weight, review.min_thrust_to_weight),
+        at_most("hover thrust fraction", hover.hover_thrust_fraction,
+                review.max_hover_thrust_fraction),
+        is_true("hover allocation has full rank (4)", hover.allocation_rank == 4),
+    ]
+
+
+def case_checks(eq, ctl, risk, review) -> list[Check]:
+    """Checks of one equilibrium case (no-failure or failure)."""
+    case = eq.label
+    out = [is_true("equilibrium within thrust limits", eq.found, case)]
+    if not eq.found:
+        return out
+    margin = float((1 - eq.thrust_fraction)[eq.working].min())
+    out.append(at_least("thrust margin of busiest rotor", margin, MIN_FAILURE_THRUST_MARGIN,
+                        "of max thrust", case))
+    if eq.failed:
+        gyro = review.gyro_full_scale_rad_s * review.max_spin_fraction_of_gyro
+        out.append(at_most("spin rate within gyro range", abs(eq.spin_rate_rad_s), gyro,
+                           "rad/s", case))
+    out.append(is_true("reduced model controllable", ctl.controllable, case))
+    out.append(is_true("LQR closed loop stable", ctl.stable, case))
+    p = risk.probability_per_s if risk is not None else math.nan
+    out.append(at_most("saturation probability", p, review.max_saturation_probability,
+                       "per s", case))
+    return out

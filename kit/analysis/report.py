@@ -1,0 +1,182 @@
+"""Everything for one design, as one result: hover, every case, spin stability, wheel, checks.
+
+``analyze(design)`` is what ``rotorbook analyze`` prints and what the design-review workbook
+shows; its ``to_dict()`` is the JSON schema ``rotorbook.analysis/1`` (keys are added, never
+renamed).
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass
+from pathlib import Path
+
+from kit import __version__
+from kit.analysis import checks as checks_mod
+from kit.analysis.control import LinearControl, design_control
+from kit.analysis.equilibrium import Equilibrium, all_cases, solve
+from kit.analysis.hover import Hover, analyse_hover
+from kit.analysis.htmltable import checks_html, num, table
+from kit.analysis.risk import SaturationRisk, saturation_risk
+from kit.analysis.vehicle import Vehicle
+from kit.analysis.wheel import WheelStudy, wheel_study
+from kit.design import Design, load
+
+SCHEMA = "rotorbook.analysis/1"
+
+
+@dataclass(frozen=True)
+class CaseResult:
+    """One equilibrium case with its control, risk and checks."""
+
+    eq: Equilibrium
+    ctl: LinearControl
+    risk: SaturationRisk | None
+    checks: tuple[checks_mod.Check, ...]
+
+    def to_dict(self) -> dict:
+        d = self.eq.to_dict()
+        c = self.ctl.to_dict()
+        d.update({
+            "reduced_model": c["reduced_model"],
+            "controllable": c["controllable"],
+            "controllability_distance": c["controllability_distance"],
+            "lqr": c["lqr"],
+            "h2_norm": c["h2_norm"],
+            "control_note": c["note"],
+            "saturation_probability_per_s": None if self.risk is None
+            else float(self.risk.probability_per_s),
+            "saturation": None if self.risk is None else self.risk.to_dict(),
+            "checks": [k.to_dict() for k in self.checks],
+        })
+        return d
+
+
+def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None) -> CaseResult:
+    """Equilibrium, linear control, saturation risk and checks for one failure case."""
+    c = veh.design.control
+    eq = solve(veh, failed, thrust_ratio, hint=hint)
+    ctl = design_control(veh, eq)
+    risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
+                           c.disturbance_time_constant_s)
+    return CaseResult(eq, ctl, risk, tuple(checks_mod.case_checks(eq, ctl, risk,
+                                                                  veh.design.review)))
+
+
+@dataclass(frozen=True)
+class DesignReport:
+    """The whole analysis of one design."""
+
+    design: Design
+    vehicle: Vehicle
+    hover: Hover
+    cases: tuple[CaseResult, ...]
+    spin: object | None
+    wheel: WheelStudy
+    checks: tuple[checks_mod.Check, ...]
+
+    @property
+    def passed(self) -> bool:
+        return all(c.passed for c in self.checks)
+
+    def case(self, failed=(), thrust_ratio=None) -> CaseResult | None:
+        for c in self.cases:
+            if set(c.eq.failed) == set(failed) and c.eq.thrust_ratio == thrust_ratio:
+                return c
+        return None
+
+    def to_dict(self) -> dict:
+        d, mp = self.design, self.vehicle.mp
+        return {
+            "schema": SCHEMA,
+            "kit_version": __version__,
+            "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
+            "mass_properties": mp.to_dict(),
+            "rotors": [
+                {"name": r.name, "position_m": [float(x) for x in pos],
+                 "spin": "ccw" if r.spin > 0 else "cw"}
+                for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True)
+            ],
+            "hover": self.hover.to_dict(),
+            "cases": [c.to_dict() for c in self.cases],
+            "spin_stability": [] if self.spin is None else self.spin.to_dict(),
+            "wheel_study": self.wheel.to_dict(),
+            "checks": [c.to_dict() for c in self.checks],
+            "assumptions": [
+                "rotor speeds follow thrust commands at once (no rotor acceleration torque)",
+                "yaw rate is held at its equilibrium value in the reduced model",
+                f"body drag torque law: {d.aero.drag_law}",
+                "disturbance-torque time constant "
+                + (f"{d.control.disturbance_time_constant_s:g} s (assumed default)"
+                   if d.control.disturbance_time_constant_assumed
+                   else f"{d.control.disturbance_time_constant_s:g} s"),
+            ],
+        }
+
+    def summary_text(self) -> str:
+        d, h = self.design, self.hover
+        lines = [f"{d.name} (revision {d.revision})",
+                 f"  hover: T/W {h.thrust_to_weight:.3g}, busiest rotor at "
+                 f"{100 * h.hover_thrust_fraction:.1f} % of max thrust",
+                 "  cases:"]
+        for c in self.cases:
+            eq = c.eq
+            if not eq.found:
+                lines.append(f"    {eq.label}: no equilibrium ({eq.reason})")
+                continue
+            p = c.risk.probability_per_s if c.risk is not None else float("nan")
+            lines.append(
+                f"    {eq.label}: spin {eq.spin_rate_rad_s:+.3g} rad/s, tilt {eq.tilt_deg:.3g}"
+                f" deg, max thrust {eq.thrust_n.max():.3g} N, "
+                f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
+                f"P(sat) {p:.2g}/s")
+        if self.wheel.available:
+            lines.append(f"  wheel: h_max {self.wheel.h_max_n_m_s:.3g} N m s, "
+                         f"{len(self.wheel.flags)} flag(s)")
+        failed = [c for c in self.checks if not c.passed]
+        lines.append(f"  checks: {len(self.checks) - len(failed)} of {len(self.checks)} passed")
+        for c in failed:
+            lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
+                         f"(limit {c.relation} {num(c.limit)} {c.unit})")
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        rows = []
+        for c in self.cases:
+            eq = c.eq
+            rows.append((eq.label, eq.found, eq.spin_rate_rad_s if eq.found else None,
+                         eq.tilt_deg if eq.found else None,
+                         float(eq.thrust_n.max()) if eq.found else None,
+                         c.ctl.controllable, c.ctl.h2_norm,
+                         c.risk.probability_per_s if c.risk is not None else None))
+        t = table(["case", "equilibrium", "spin (rad/s)", "tilt (deg)", "max thrust (N)",
+                   "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
+        head = f"<h4>{html.escape(self.design.name)} (revision {html.escape(self.design.revision)})</h4>"
+        return head + checks_html(self.checks) + t
+
+
+def analyze(design: Design, wheel: bool = True, executor=None) -> DesignReport:
+    """Run every analysis of a design (hover, all cases, spin stability, wheel study, checks)."""
+    veh = Vehicle.from_design(design)
+    hover = analyse_hover(veh)
+    cases = tuple(analyse_case(veh, f, r) for f, r in all_cases(veh))
+    spin = None
+    try:
+        from kit.analysis import spin as spin_mod
+    except ImportError:  # pragma: no cover - spin module optional during development
+        spin_mod = None
+    if spin_mod is not None:
+        spin = spin_mod.spin_report(veh, [c.eq for c in cases])
+    study = wheel_study(veh, executor=executor) if wheel else wheel_study(
+        veh, cases=[]) if design.wheel is not None else wheel_study(veh)
+    checks = list(checks_mod.hover_checks(hover, design.review))
+    for c in cases:
+        checks += c.checks
+    if spin is not None:
+        checks += spin.checks()
+    return DesignReport(design, veh, hover, cases, spin, study, tuple(checks))
+
+
+def analyze_file(path: str | Path, progress: bool = False) -> DesignReport:
+    """Load a design file and analyse it (DesignError for an invalid file)."""
+    return analyze(load(path))

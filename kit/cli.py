@@ -10,7 +10,6 @@ import argparse
 import json
 import sys
 import warnings
-from pathlib import Path
 
 from kit import __version__
 from kit.errors import DesignError, DesignWarning, RecordError, RotorbookError

@@ -1,8 +1,8 @@
 """Design files: read, validate and normalise a vehicle description.
 
 A design file is TOML, read with :mod:`tomllib` and never executed. Every value is SI and every
-field carries its unit in its name (``mass_kg``, ``position_m``). :func:`load` collects every problem
-in the file and raises one :class:`~kit.errors.DesignError` that lists each, as
+field carries its unit in its name (``mass_kg``, ``position_m``). :func:`load` collects every
+problem in the file and raises one :class:`~kit.errors.DesignError` that lists each, as
 ``field path: bad value -> what is allowed``. Valid files give a frozen :class:`Design`.
 
 The field reference is in README.md ("Design file"); the conventions (frames, spin signs) are
@@ -285,13 +285,16 @@ _KIND_TEXT = {
     "vec3pos": "a list of 3 numbers > 0",
     "mat3": "a 3x3 list of numbers",
     "strlist": "a list of rotor names",
-    "ratio_table": "a table {rotor name = ratio > 0}",
+    "ratio_table": "a table {rotor name = ratio >= 0}, at least one ratio > 0",
     "nonneg_or_vec3": "a number >= 0 or a list of 3 numbers >= 0",
 }
 
 
 def _fmt(value: Any) -> str:
-    text = repr(value)
+    try:
+        text = repr(value)
+    except (ValueError, RecursionError):  # an int too long to print, a list nested too deep
+        text = f"<{type(value).__name__} too large to show>"
     return text if len(text) <= 60 else text[:57] + "..."
 
 
@@ -327,7 +330,10 @@ class _Collector:
         if not _is_number(value):
             self.bad(where, value, _KIND_TEXT[kind])
             return None
-        x = float(value)
+        try:
+            x = float(value)
+        except OverflowError:  # an integer beyond the float range
+            x = math.inf
         if not math.isfinite(x):
             self.bad(where, value, f"a finite number ({_KIND_TEXT[kind]})")
             return None
@@ -424,7 +430,7 @@ def _read_fields(c: _Collector, where: str, table: Any, section: str) -> dict[st
             else:
                 ratios = {}
                 for key, r in value.items():
-                    x = c.number(f"{path}.{key}", r, "nonneg")
+                    x = c.number(f"{path}.{key}", r, "nonneg_quiet")
                     if x is None:
                         ratios = None
                         break
@@ -636,7 +642,7 @@ def _cross_checks(v: dict[str, Any], c: _Collector) -> None:
                       "inertia_kg_m2")
         else:
             for k in ("mass_kg", "com_m", "inertia_kg_m2"):
-                if k not in (v["body"] or {}):
+                if body.get(k) is None:
                     c.missing(f"body.{k}", "with no [[part]], [body] needs mass_kg, com_m and "
                               "inertia_kg_m2")
     # failure cases
@@ -718,7 +724,7 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
     rv = v["review"] or {}
     defaulted = tuple(k for k in REVIEW_DEFAULTS if rv.get(k) is None)
     review = Review(
-        **{k: (rv.get(k) if rv.get(k) is not None else REVIEW_DEFAULTS[k]) for k in REVIEW_DEFAULTS},
+        **{k: (REVIEW_DEFAULTS[k] if rv.get(k) is None else rv[k]) for k in REVIEW_DEFAULTS},
         defaulted=defaulted,
     )
     cases = tuple(
@@ -773,11 +779,12 @@ def _has_none(v: Any) -> bool:
 def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Design:
     """Validate a design given as TOML text; see :func:`load`."""
     if sha256 is None:
-        sha256 = hashlib.sha256(text.encode("utf-8")).hexdigest()
+        sha256 = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise DesignError([f"TOML syntax: {exc}"], path=source) from None
+        raise DesignError([f"TOML syntax: {exc} -> valid TOML (key = value lines, [table] and "
+                           "[[array]] headers)"], path=source) from None
     return from_dict(data, source=source, sha256=sha256)
 
 
@@ -818,6 +825,17 @@ def load(path: str | Path) -> Design:
         Listing every problem found, one line each.
     """
     p = Path(path)
+    try:
+        return _load(p)
+    except DesignError:
+        raise
+    except (OSError, ValueError) as exc:  # unreadable (permissions), a NUL byte in the path
+        reason = getattr(exc, "strerror", None) or exc
+        raise DesignError([f"file: {str(p)!r} cannot be read ({reason}) -> give the path of a "
+                           "readable .toml design file"], path=str(p)) from None
+
+
+def _load(p: Path) -> Design:
     if not p.exists():
         raise DesignError([f"file: {str(p)!r} does not exist -> give the path of a .toml design "
                            "file"], path=str(p))
@@ -826,8 +844,8 @@ def load(path: str | Path) -> Design:
                            "file"], path=str(p))
     size = p.stat().st_size
     if size > MAX_FILE_BYTES:
-        raise DesignError([f"file: {size} bytes -> at most {MAX_FILE_BYTES} bytes (1 MiB); a design "
-                           "file holds data only"], path=str(p))
+        raise DesignError([f"file: {size} bytes -> at most {MAX_FILE_BYTES} bytes (1 MiB); a "
+                           "design file holds data only"], path=str(p))
     raw = p.read_bytes()
     try:
         text = raw.decode("utf-8")
@@ -836,5 +854,5 @@ def load(path: str | Path) -> Design:
                           path=str(p)) from None
     design = loads(text, source=str(p), sha256=hashlib.sha256(raw).hexdigest())
     for text_warning in design.warnings:
-        warnings.warn(f"{p.name}: {text_warning}", DesignWarning, stacklevel=2)
+        warnings.warn(f"{p.name}: {text_warning}", DesignWarning, stacklevel=3)
     return design

@@ -49,7 +49,7 @@ _AXIS_INDEX = {"x": 0, "y": 1, "z": 2}
 
 @dataclass(frozen=True)
 class Item:
-    """A mass element as used by the mass-property sum: mass, centre and inertia about its centre."""
+    """A mass element of the mass-property sum: mass, centre, inertia about its own centre."""
 
     name: str
     mass_kg: float
@@ -79,8 +79,9 @@ class MassProperties:
         Wheel centre about the CoM, in m.
     items : tuple of Item
         Parts (and rotor and wheel masses) with their contribution, for tables.
-    computed_inertia_kg_m2 : ndarray (3, 3)
-        The inertia computed from parts, even when a measured one replaces it (for the 10 % check).
+    computed_inertia_kg_m2 : ndarray (3, 3) or None
+        The inertia computed from parts (rotor and wheel spin inertia included), even when a
+        measured one replaces it (for the 10 % check); None when there is nothing to compute from.
     warnings : tuple of str
         Plausibility warnings (CoM far from the rotors' centroid, measured vs computed inertia).
     """
@@ -170,6 +171,8 @@ def combine(items: list[Item] | tuple[Item, ...]) -> tuple[float, np.ndarray, np
     -------
     mass_kg, com_m (3,), inertia_kg_m2 (3, 3)
     """
+    if not items:
+        raise ValueError("combine() needs at least one mass element")
     mass = float(sum(it.mass_kg for it in items))
     com = sum(it.mass_kg * it.position_m for it in items) / mass
     J = np.zeros((3, 3))
@@ -230,16 +233,18 @@ def compute(design: Design) -> MassProperties:
 
     Notes
     -----
-    A measured ``[body].inertia_kg_m2`` is the whole vehicle's with rotors stopped (DESIGN.md):
-    it replaces the parts' inertia; the rotors' (and wheel's) spin-axis inertia is added to it, as
-    to the computed one. The wheel is treated like a rotor: its mass is a point at its centre, its
-    spin inertia about body z is part of J, and its relative momentum is ``h`` of the wheel study.
+    A measured ``[body].inertia_kg_m2`` is the whole vehicle's, rotors (and wheel) included, taken
+    with them stopped (DESIGN.md, "Inertia"): it replaces J as it stands. Their spin-axis inertia
+    is already in it, so it is added only to the inertia computed from parts. The wheel is
+    treated like a rotor: its mass is a point at its centre, its spin inertia about body z is part
+    of J, and its relative momentum is ``h`` of the wheel study.
     """
     items = items_of(design)
     warns: list[str] = []
     computed_J = None
     if items:
         mass, com, J = combine(items)
+        J = J + spin_inertia(design)
         computed_J = J
     body = design.body
     if body is not None:
@@ -249,7 +254,7 @@ def compute(design: Design) -> MassProperties:
             com = np.asarray(body.com_m, float)
         if body.inertia_kg_m2 is not None:
             J = np.asarray(body.inertia_kg_m2, float)
-            if computed_J is not None:
+            if design.parts and computed_J is not None:
                 rel = np.linalg.norm(J - computed_J) / np.linalg.norm(J)
                 if rel > 0.10:
                     warns.append(
@@ -257,7 +262,6 @@ def compute(design: Design) -> MassProperties:
                         f"{100 * rel:.0f} % (Frobenius norm; over 10 %): check the parts or the "
                         "measurement"
                     )
-    J = J + spin_inertia(design)
     hubs = np.array([r.position_m for r in design.rotors], float)
     centroid = hubs[:, :2].mean(axis=0)
     span = max(float(np.max(np.linalg.norm(hubs[:, :2] - centroid, axis=1))), 1e-9)

@@ -69,6 +69,9 @@ class InvNorm3(sp.Function):
     def _latex(self, printer):
         return r"\left\lVert %s \right\rVert^{-1}" % _norm_arg_latex(self.args, printer)
 
+    def _sympystr(self, printer):
+        return "(1/|%s|)" % _norm_arg_str(self.args, printer)
+
 
 class Norm3(sp.Function):
     """Euclidean norm ``sqrt(a^2 + b^2 + c^2)`` of three real arguments (quadratic drag)."""
@@ -83,6 +86,15 @@ class Norm3(sp.Function):
 
     def _latex(self, printer):
         return r"\left\lVert %s \right\rVert" % _norm_arg_latex(self.args, printer)
+
+    def _sympystr(self, printer):
+        return "|%s|" % _norm_arg_str(self.args, printer)
+
+
+def _norm_arg_str(args, printer):
+    if [str(a) for a in args] == ["p", "q", "r"]:
+        return "omega"
+    return "(%s)" % ", ".join(printer._print(a) for a in args)
 
 
 def _norm_arg_latex(args, printer):

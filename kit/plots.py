@@ -1,0 +1,579 @@
+"""Bokeh figures of the panels: our palette and look, figure builders, and static embedding.
+
+Every figure is built once around named :class:`~bokeh.models.ColumnDataSource` objects; a panel
+updates it by replacing ``source.data`` with a dict from one of the ``*_data`` functions here
+(pure: analysis result in, plain lists out, numbers rounded to :data:`SIG` significant figures
+so stored outputs do not carry float noise). :func:`embed_html` writes a layout as one HTML
+fragment (a ``div`` and a ``script`` calling ``Bokeh.embed.embed_items``) that works the same
+live in JupyterLab (inside an ``ipywidgets.Output``) and in a static record, where the record
+template embeds BokehJS once. Element and document ids are numbered per process (``rb-fig-N``,
+``rb-doc-N``) and Bokeh's model ids are its simple ids, so the same workbook run gives the same
+text. Nothing here computes physics.
+
+Colours: the categorical palette of Okabe & Ito, "Color Universal Design (CUD): how to make
+figures and presentations that are friendly to colorblind people" (2008), and the sequential
+"iridescent" scheme of P. Tol, "Colour Schemes", SRON technical note SRON/EPS/TN/09-002
+(issue 3.2, 2021) for maps, with Tol's grey for missing data.
+"""
+
+from __future__ import annotations
+
+import html
+import itertools
+import json
+import math
+
+import numpy as np
+
+#: Okabe-Ito colours (Okabe & Ito 2008), by name.
+OKABE_ITO = {
+    "black": "#000000", "orange": "#E69F00", "sky_blue": "#56B4E9", "green": "#009E73",
+    "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "purple": "#CC79A7",
+}
+#: Paul Tol's sequential "iridescent" scheme (SRON/EPS/TN/09-002, fig. 20), light to dark.
+TOL_IRIDESCENT = (
+    "#FEFBE9", "#FCF7D5", "#F5F3C1", "#EAF0B5", "#DDECBF", "#D0E7CA", "#C2E3D2", "#B5DDD8",
+    "#A8D8DC", "#9BD2E1", "#8DCBE4", "#81C4E7", "#7BBCE7", "#7EB2E4", "#88A5DD", "#9398D2",
+    "#9B8AC4", "#9D7DB2", "#9A709E", "#906388", "#805770", "#684957", "#46353A",
+)
+#: Tol's colour for missing data (no equilibrium, no stabilising loop).
+MISSING = "#999999"
+
+#: Roles of the colours in every panel, so one meaning keeps one colour.
+COLOURS = {
+    "ccw": OKABE_ITO["blue"], "cw": OKABE_ITO["vermillion"], "failed": MISSING,
+    "limit": OKABE_ITO["black"], "threshold": OKABE_ITO["orange"], "com": OKABE_ITO["black"],
+    "wheel": OKABE_ITO["purple"], "closed_loop": OKABE_ITO["blue"],
+    "open_loop": OKABE_ITO["vermillion"], "marker": OKABE_ITO["vermillion"],
+    "flag": OKABE_ITO["orange"], "fixed_gain": OKABE_ITO["sky_blue"],
+    "axes": (OKABE_ITO["orange"], OKABE_ITO["green"], OKABE_ITO["purple"]),
+    "series": (OKABE_ITO["blue"], OKABE_ITO["vermillion"], OKABE_ITO["green"],
+               OKABE_ITO["orange"], OKABE_ITO["purple"], OKABE_ITO["sky_blue"],
+               OKABE_ITO["yellow"], OKABE_ITO["black"]),
+}
+#: Significant figures of the numbers written into figure data.
+SIG = 6
+#: Font of titles and axis labels.
+FONT = "Helvetica, Arial, sans-serif"
+TOOLS = "pan,wheel_zoom,box_zoom,reset,save"
+
+_IDS = itertools.count(1)
+
+
+# --- numbers --------------------------------------------------------------------------------
+
+
+def rounded(values, sig: int = SIG) -> list[float]:
+    """``values`` as a list of floats with ``sig`` significant figures (nan kept)."""
+    a = np.asarray(values, float).ravel()
+    out = []
+    for v in a.tolist():
+        if v == 0 or not math.isfinite(v):
+            out.append(v)
+        else:
+            out.append(float(f"{v:.{sig}g}"))
+    return out
+
+
+def fmt(x, sig: int = 3, unit: str = "") -> str:
+    """A readout: ``sig`` significant figures, the unit after a space; a dash for None/nan."""
+    if x is None:
+        return "\u2013"
+    if isinstance(x, bool | np.bool_):
+        return "yes" if x else "no"
+    x = float(x)
+    if not math.isfinite(x):
+        return "\u2013" if math.isnan(x) else ("\u221e" if x > 0 else "\u2212\u221e")
+    s = "0" if x == 0 else f"{x:.{sig}g}"
+    return f"{s} {unit}" if unit else s
+
+
+# --- look -----------------------------------------------------------------------------------
+
+
+def new_figure(title: str, x_label: str, y_label: str, width: int = 360, height: int = 300,
+               **kw):
+    """A figure in our look: light grid, no outline, titles left-aligned in our font."""
+    from bokeh.plotting import figure
+
+    p = figure(title=title, width=width, height=height, tools=TOOLS,
+               toolbar_location="right", **kw)
+    p.toolbar.logo = None
+    p.title.text_font = FONT
+    p.title.text_font_size = "12px"
+    p.title.text_font_style = "bold"
+    p.title.text_color = "#222222"
+    p.outline_line_color = None
+    p.background_fill_color = "#FCFCFA"
+    p.border_fill_color = "#FFFFFF"
+    p.min_border_left = 50
+    for ax in (p.xaxis, p.yaxis):
+        ax.axis_label_text_font = FONT
+        ax.axis_label_text_font_style = "normal"
+        ax.axis_label_text_font_size = "11px"
+        ax.major_label_text_font_size = "10px"
+        ax.axis_line_color = "#555555"
+        ax.major_tick_line_color = "#555555"
+        ax.minor_tick_line_color = None
+    p.xaxis.axis_label = x_label
+    p.yaxis.axis_label = y_label
+    p.grid.grid_line_color = "#E4E4E0"
+    p.grid.grid_line_dash = [2, 3]
+    return p
+
+
+def _legend_style(p, location="top_right") -> None:
+    if p.legend:
+        p.legend.location = location
+        p.legend.label_text_font = FONT
+        p.legend.label_text_font_size = "10px"
+        p.legend.background_fill_alpha = 0.8
+        p.legend.border_line_color = None
+        p.legend.padding = 4
+        p.legend.spacing = 0
+
+
+def _source(**cols):
+    from bokeh.models import ColumnDataSource
+
+    return ColumnDataSource(data={k: list(v) for k, v in cols.items()})
+
+
+# --- embedding ------------------------------------------------------------------------------
+
+
+def _js_json(obj) -> str:
+    """JSON safe to place inside a ``<script>`` (no ``</script>``, no HTML entities)."""
+    text = json.dumps(obj, separators=(",", ":"), allow_nan=False)
+    return (text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+            .replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
+
+
+def bokehjs_url_path() -> str:
+    """Path (under the Jupyter server's base URL) where :mod:`kit.panels.serve` serves BokehJS."""
+    import bokeh
+
+    return f"rotorbook/bokehjs/{bokeh.__version__}/bokeh.min.js"
+
+
+def loader_js() -> str:
+    """JavaScript that loads BokehJS once from the local installation through the Jupyter server.
+
+    It does nothing when BokehJS is already there (a record embeds it) or when the page is not
+    a Jupyter page (no ``jupyter-config-data``), so it never fetches anything in a record.
+    """
+    path = json.dumps(bokehjs_url_path())
+    return (
+        "if (window.Bokeh === undefined && !window.rbBokehLoading) {"
+        "const cfg = document.getElementById('jupyter-config-data');"
+        "if (cfg) {window.rbBokehLoading = true;"
+        "let base = '/'; try {base = JSON.parse(cfg.textContent).baseUrl || '/';} catch (e) {}"
+        "const s = document.createElement('script');"
+        f"s.src = base.replace(/\\/?$/, '/') + {path};"
+        "s.onerror = function () {window.rbBokehLoading = false;"
+        "console.warn('rotorbook: BokehJS is not served by this Jupyter server');};"
+        "document.head.appendChild(s);}}"
+    )
+
+
+def embed_html(model) -> str:
+    """One HTML fragment rendering ``model`` (a figure or layout already in a Document).
+
+    The document JSON sits on its own line (``const docs_json = ...;``) so a notebook sanitiser
+    can replace it whole. The figure waits up to 15 s for BokehJS, then says it is missing.
+    """
+    from bokeh.document import Document
+
+    doc = model.document
+    if doc is None:
+        doc = Document()
+        doc.add_root(model)
+    n = next(_IDS)
+    docid, elid = f"rb-doc-{n}", f"rb-fig-{n}"
+    docs_json = {docid: doc.to_json(deferred=False)}
+    items = [{"docid": docid, "roots": {model.id: elid}, "root_ids": [model.id]}]
+    missing = html.escape("This figure needs BokehJS: open the workbook in JupyterLab started "
+                          "with `make lab` (it serves BokehJS from the local installation).")
+    return (
+        f'<div id="{elid}" class="rb-figure" data-root-id="{model.id}" '
+        'style="display: contents;"></div>\n'
+        '<script type="text/javascript">\n(function () {\n'
+        f"const docs_json = {_js_json(docs_json)};\n"
+        f"const render_items = {_js_json(items)};\n"
+        f"{loader_js()}\n"
+        "let tries = 0;\n"
+        "(function wait() {\n"
+        "  if (window.Bokeh !== undefined && window.Bokeh.embed !== undefined) {\n"
+        "    window.Bokeh.embed.embed_items(docs_json, render_items); return; }\n"
+        "  if (++tries > 300) {\n"
+        f"    const el = document.getElementById({json.dumps(elid)});\n"
+        f"    if (el) {{ el.textContent = {json.dumps(missing)}; el.style.display = 'block'; }}\n"
+        "    return; }\n"
+        "  setTimeout(wait, 50);\n"
+        "})();\n})();\n</script>"
+    )
+
+
+def in_document(model):
+    """Put ``model`` in a Document of its own (once, at build time) and return it."""
+    from bokeh.document import Document
+
+    if model.document is None:
+        Document().add_root(model)
+    return model
+
+
+def set_data(source, data: dict) -> None:
+    """Replace a source's data with a new dict (one change event, as STYLE.md asks)."""
+    source.data = dict(data)
+
+
+# --- overview: top view ---------------------------------------------------------------------
+
+
+def top_view_figure(extent_m: float):
+    """Top view of the layout: forward (x_B) up the page, right (-y_B) to the right, in m.
+
+    Plot coordinates are ``(-y_B, x_B)``, a proper rotation, so counter-clockwise about +z_B
+    (seen from above) is counter-clockwise on the page.
+    """
+    from bokeh.models import LabelSet, Range1d
+
+    e = float(extent_m)
+    p = new_figure("Layout seen from above", "right, \u2212y_B (m)", "forward, x_B (m)",
+                   width=380, height=380, match_aspect=True,
+                   x_range=Range1d(-e, e), y_range=Range1d(-e, e))
+    s = {
+        "rotors": _source(sx=[], sy=[], r=[], name=[], colour=[], spin=[], label_sy=[]),
+        "arrows": _source(sx=[], sy=[], r=[], start=[], end=[], colour=[]),
+        "heads": _source(sx=[], sy=[], angle=[], colour=[]),
+        "com": _source(sx=[], sy=[]),
+        "axes": _source(xs=[], ys=[], colour=[], name=[]),
+        "wheel": _source(sx=[], sy=[], r=[]),
+    }
+    p.circle(x="sx", y="sy", radius="r", source=s["rotors"], fill_color="colour",
+             fill_alpha=0.12, line_color="colour", line_width=1.5, legend_field="spin")
+    p.arc(x="sx", y="sy", radius="r", start_angle="start", end_angle="end", source=s["arrows"],
+          line_color="colour", line_width=2)
+    p.scatter(x="sx", y="sy", angle="angle", source=s["heads"], marker="triangle", size=9,
+              fill_color="colour", line_color="colour")
+    p.add_layout(LabelSet(x="sx", y="label_sy", text="name", source=s["rotors"],
+                          text_font_size="10px", text_align="center", text_font=FONT))
+    p.multi_line(xs="xs", ys="ys", source=s["axes"], line_color="colour", line_width=2,
+                 legend_field="name")
+    p.circle(x="sx", y="sy", radius="r", source=s["wheel"], fill_color=COLOURS["wheel"],
+             fill_alpha=0.35, line_color=COLOURS["wheel"], legend_label="wheel")
+    p.scatter(x="sx", y="sy", source=s["com"], marker="circle_cross", size=14,
+              fill_color="white", line_color=COLOURS["com"], line_width=2,
+              legend_label="centre of mass")
+    _legend_style(p, "bottom_left")
+    return p, s
+
+
+def top_view_data(design, mp) -> dict[str, dict]:
+    """Source data of :func:`top_view_figure` from a design and its mass properties.
+
+    Positions are about the centre of mass (as the analysis uses them), in m; the principal
+    axes are drawn by their projection on the x-y plane.
+    """
+    pos = mp.rotor_positions_m
+    sx, sy = -pos[:, 1], pos[:, 0]
+    span = float(np.max(np.linalg.norm(pos[:, :2], axis=1))) if len(pos) else 0.1
+    r_disc = np.array([0.5 * (r.diameter_m if r.diameter_m else 0.3 * span)
+                       for r in design.rotors])
+    colour = [COLOURS["ccw"] if r.spin > 0 else COLOURS["cw"] for r in design.rotors]
+    spin = ["ccw (+z)" if r.spin > 0 else "cw (\u2212z)" for r in design.rotors]
+    r_arrow = 0.6 * r_disc
+    a0, a1 = math.radians(30.0), math.radians(300.0)
+    hx, hy, ang = [], [], []
+    for x0, y0, ra, r in zip(sx, sy, r_arrow, design.rotors, strict=True):
+        tip = a1 if r.spin > 0 else a0
+        hx.append(x0 + ra * math.cos(tip))
+        hy.append(y0 + ra * math.sin(tip))
+        # the triangle points up at angle 0; turn it along the direction of rotation
+        ang.append(tip if r.spin > 0 else tip - math.pi)
+    L = 0.8 * span
+    axes_x, axes_y = [], []
+    for k in range(3):
+        a = mp.principal_axes[:, k]
+        axes_x.append(rounded([L * a[1], -L * a[1]]))
+        axes_y.append(rounded([-L * a[0], L * a[0]]))
+    names = [f"{n} axis, {fmt(m, 3)} kg m\u00b2" for n, m in
+             zip(("minor", "intermediate", "major"), mp.principal_moments_kg_m2, strict=True)]
+    wheel: dict[str, list] = {"sx": [], "sy": [], "r": []}
+    if mp.wheel_position_m is not None:
+        wheel = {"sx": rounded([-mp.wheel_position_m[1]]), "sy": rounded([mp.wheel_position_m[0]]),
+                 "r": rounded([0.15 * span])}
+    return {
+        "rotors": {"sx": rounded(sx), "sy": rounded(sy), "r": rounded(r_disc),
+                   "name": list(design.rotor_names), "colour": colour, "spin": spin,
+                   "label_sy": rounded(sy + r_disc + 0.04 * span)},
+        "arrows": {"sx": rounded(sx), "sy": rounded(sy), "r": rounded(r_arrow),
+                   "start": [a0] * len(sx), "end": [a1] * len(sx), "colour": colour},
+        "heads": {"sx": rounded(hx), "sy": rounded(hy), "angle": rounded(ang), "colour": colour},
+        "com": {"sx": [0.0], "sy": [0.0]},
+        "axes": {"xs": axes_x, "ys": axes_y, "colour": list(COLOURS["axes"]), "name": names},
+        "wheel": wheel,
+    }
+
+
+def extent_of(mp) -> float:
+    """Half-width of a square view holding every rotor disc, in m."""
+    pos = mp.rotor_positions_m
+    span = float(np.max(np.abs(pos[:, :2]))) if len(pos) else 0.1
+    return 1.45 * span
+
+
+# --- thrust bars (hover and failure) --------------------------------------------------------
+
+
+def thrust_figure(names, title: str = "Thrust per rotor against its limit"):
+    """Bars of thrust per rotor, the limit as a black tick, a threshold as an orange tick."""
+    p = new_figure(title, "rotor", "thrust (N)", width=380, height=300,
+                   x_range=list(names))
+    s = {"bars": _source(name=[], thrust=[], colour=[], limit=[], threshold=[], label=[])}
+    p.vbar(x="name", top="thrust", width=0.6, source=s["bars"], fill_color="colour",
+           line_color=None, legend_field="label")
+    p.scatter(x="name", y="limit", source=s["bars"], marker="dash", size=34, line_width=3,
+              line_color=COLOURS["limit"], legend_label="limit")
+    p.scatter(x="name", y="threshold", source=s["bars"], marker="dash", size=34, line_width=2,
+              line_color=COLOURS["threshold"], legend_label="review threshold")
+    p.y_range.start = 0
+    _legend_style(p, "top_left")
+    return p, s
+
+
+def thrust_data(names, thrust_n, max_thrust_n, working=None, spin=None,
+                threshold_fraction: float | None = None) -> dict[str, dict]:
+    """Source data of :func:`thrust_figure`: thrusts and limits in N; failed rotors in grey."""
+    n = len(names)
+    working = np.ones(n, bool) if working is None else np.asarray(working, bool)
+    spin = np.ones(n) if spin is None else np.asarray(spin)
+    colour, label = [], []
+    for w, s in zip(working, spin, strict=True):
+        if not w:
+            colour.append(COLOURS["failed"])
+            label.append("failed")
+        else:
+            colour.append(COLOURS["ccw"] if s > 0 else COLOURS["cw"])
+            label.append("ccw rotor" if s > 0 else "cw rotor")
+    fmax = np.asarray(max_thrust_n, float)
+    thr = (fmax * threshold_fraction) if threshold_fraction is not None else np.full(n, np.nan)
+    return {"bars": {"name": list(names), "thrust": rounded(np.nan_to_num(thrust_n)),
+                     "colour": colour, "limit": rounded(fmax), "threshold": rounded(thr),
+                     "label": label}}
+
+
+def torque_figure():
+    """Torque authority about each body axis while holding the weight, in N m."""
+    p = new_figure("Torque authority in hover", "body axis", "torque (N m)", width=320,
+                   height=300, x_range=["roll x", "pitch y", "yaw z"])
+    s = {"bars": _source(axis=[], top=[], bottom=[], margin=[])}
+    p.vbar(x="axis", top="top", bottom="bottom", width=0.5, source=s["bars"],
+           fill_color=COLOURS["fixed_gain"], line_color=None, legend_label="min .. max")
+    p.scatter(x="axis", y="margin", source=s["bars"], marker="dash", size=28, line_width=3,
+              line_color=COLOURS["limit"], legend_label="margin (smaller side)")
+    _legend_style(p, "top_left")
+    return p, s
+
+
+def torque_data(torque_max_n_m, torque_min_n_m, margin_n_m) -> dict[str, dict]:
+    return {"bars": {"axis": ["roll x", "pitch y", "yaw z"], "top": rounded(torque_max_n_m),
+                     "bottom": rounded(torque_min_n_m), "margin": rounded(margin_n_m)}}
+
+
+# --- failure: poles, CoM circle, time response ----------------------------------------------
+
+
+def poles_figure():
+    """Open- and closed-loop poles of the reduced model, in 1/s."""
+    from bokeh.models import Span
+
+    p = new_figure("Poles of the reduced model", "real part (1/s)", "imaginary part (1/s)",
+                   width=340, height=300)
+    s = {"closed": _source(re=[], im=[]), "open": _source(re=[], im=[])}
+    p.add_layout(Span(location=0, dimension="height", line_color="#888888", line_width=1))
+    p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
+    p.scatter(x="re", y="im", source=s["open"], marker="x", size=11, line_width=2,
+              line_color=COLOURS["open_loop"], legend_label="open loop")
+    p.scatter(x="re", y="im", source=s["closed"], marker="circle", size=9,
+              fill_color=COLOURS["closed_loop"], line_color=COLOURS["closed_loop"],
+              legend_label="closed loop (LQR)")
+    _legend_style(p, "top_left")
+    return p, s
+
+
+def poles_data(closed_loop, open_loop) -> dict[str, dict]:
+    def split(z):
+        if z is None:
+            return {"re": [], "im": []}
+        z = np.asarray(z, complex)
+        ok = np.isfinite(z)
+        return {"re": rounded(z[ok].real), "im": rounded(z[ok].imag)}
+
+    return {"closed": split(closed_loop), "open": split(open_loop)}
+
+
+def circle_figure():
+    """The centre of mass's circle in the world's horizontal plane, in m."""
+    p = new_figure("Path of the centre of mass (world, from above)", "east (m)", "north (m)",
+                   width=300, height=300, match_aspect=True)
+    s = {"path": _source(x=[], y=[]), "centre": _source(x=[], y=[])}
+    p.line(x="x", y="y", source=s["path"], line_color=COLOURS["closed_loop"], line_width=2,
+           legend_label="equilibrium circle")
+    p.scatter(x="x", y="y", source=s["centre"], marker="cross", size=12,
+              line_color=COLOURS["com"], line_width=2, legend_label="circle centre")
+    _legend_style(p, "top_left")
+    return p, s
+
+
+def circle_data(radius_m: float, n: int = 121) -> dict[str, dict]:
+    """A circle of the given radius about the origin (empty when there is none)."""
+    if radius_m is None or not math.isfinite(radius_m):
+        return {"path": {"x": [], "y": []}, "centre": {"x": [], "y": []}}
+    a = np.linspace(0.0, 2 * math.pi, n)
+    return {"path": {"x": rounded(radius_m * np.cos(a)), "y": rounded(radius_m * np.sin(a))},
+            "centre": {"x": [0.0], "y": [0.0]}}
+
+
+def response_figures(names):
+    """Time response after the failure: body rates and spin rate (rad/s); thrusts (N)."""
+    from bokeh.models import Span
+
+    rates = new_figure("Body rates after the failure", "time (s)", "rate (rad/s)",
+                       width=380, height=260)
+    thrust = new_figure("Rotor thrusts after the failure", "time (s)", "thrust (N)",
+                        width=380, height=260, x_range=rates.x_range)
+    cols = {"t": []}
+    for k in ("p", "q", "r", "spin", "alt"):
+        cols[k] = []
+    for i in range(len(names)):
+        cols[f"f{i}"] = []
+    s = {"series": _source(**cols), "marks": _source(t=[], label=[])}
+    labels = {"p": "p", "q": "q", "r": "r", "spin": "spin about up (\u03c9\u00b7n)"}
+    for (k, lab), c in zip(labels.items(), COLOURS["series"], strict=False):
+        rates.line(x="t", y=k, source=s["series"], line_color=c, line_width=1.8,
+                   legend_label=lab, line_dash="dashed" if k == "spin" else "solid")
+    for i, name in enumerate(names):
+        c = COLOURS["series"][i % len(COLOURS["series"])]
+        thrust.line(x="t", y=f"f{i}", source=s["series"], line_color=c, line_width=1.8,
+                    legend_label=name)
+    for p in (rates, thrust):
+        _legend_style(p, "top_right")
+        p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
+    return rates, thrust, s
+
+
+def response_data(sim, n_rotors: int, max_points: int = 400) -> dict[str, dict]:
+    """Source data of :func:`response_figures` from a SimulationResult (None: empty)."""
+    cols: dict[str, list] = {"t": [], "p": [], "q": [], "r": [], "spin": [], "alt": []}
+    for i in range(n_rotors):
+        cols[f"f{i}"] = []
+    if sim is None:
+        return {"series": cols, "marks": {"t": [], "label": []}}
+    ser = sim.series(max_points=max_points)
+    w = np.asarray(ser["omega_rad_s"])
+    cols.update({"t": rounded(ser["t_s"]), "p": rounded(w[:, 0]), "q": rounded(w[:, 1]),
+                 "r": rounded(w[:, 2]), "spin": rounded(ser["spin_rate_rad_s"]),
+                 "alt": rounded(ser["altitude_m"])})
+    for i, name in enumerate(sim.names):
+        cols[f"f{i}"] = rounded(ser["thrust_n"][name])
+    marks = [(t, lab) for t, lab in ((sim.t_fail_s, "failure"), (sim.t_switch_s, "switch"))
+             if math.isfinite(t)]
+    return {"series": cols, "marks": {"t": [m[0] for m in marks], "label": [m[1] for m in marks]}}
+
+
+# --- wheel ----------------------------------------------------------------------------------
+
+
+def wheel_figure():
+    """H2 ratio against wheel momentum, the chosen momentum as a marker, flags in orange."""
+    from bokeh.models import Span
+
+    p = new_figure("Disturbance sensitivity against wheel momentum", "wheel momentum h (N m s)",
+                   "H2 ratio to h = 0 (1)", width=460, height=320)
+    s = {"curve": _source(h=[], ratio=[], fixed=[]), "flags": _source(h=[], ratio=[], text=[]),
+         "marker": _source(h=[], ratio=[])}
+    p.add_layout(Span(location=1.0, dimension="width", line_color="#888888", line_dash="dotted"))
+    p.line(x="h", y="ratio", source=s["curve"], line_color=COLOURS["closed_loop"], line_width=2,
+           legend_label="LQR redesigned per h")
+    p.scatter(x="h", y="ratio", source=s["curve"], size=4, fill_color=COLOURS["closed_loop"],
+              line_color=None)
+    p.line(x="h", y="fixed", source=s["curve"], line_color=COLOURS["fixed_gain"], line_width=2,
+           line_dash="dashed", legend_label="h = 0 gain kept")
+    p.scatter(x="h", y="ratio", source=s["flags"], marker="triangle", size=11,
+              fill_color=COLOURS["flag"], line_color="#000000", legend_label="flagged")
+    p.scatter(x="h", y="ratio", source=s["marker"], marker="diamond", size=15,
+              fill_color=COLOURS["marker"], line_color="#000000", legend_label="chosen h")
+    _legend_style(p, "top_left")
+    return p, s
+
+
+def wheel_curve_data(curve, flagged_h) -> dict[str, dict]:
+    """Source data of the curve and its flagged points (h in N m s)."""
+    h = np.asarray(curve.h_n_m_s, float)
+    ratio = np.asarray(curve.h2_ratio, float)
+    idx = [int(np.argmin(np.abs(h - fh))) for fh in flagged_h]
+    return {"curve": {"h": rounded(h), "ratio": rounded(ratio),
+                      "fixed": rounded(curve.h2_ratio_fixed_gain)},
+            "flags": {"h": rounded(h[idx]) if idx else [],
+                      "ratio": rounded(np.nan_to_num(ratio[idx], nan=1.0)) if idx else [],
+                      "text": [str(i) for i in idx]}}
+
+
+def marker_data(h: float, ratio: float) -> dict[str, dict]:
+    return {"marker": {"h": rounded([h]), "ratio": rounded([ratio])}}
+
+
+# --- placement map --------------------------------------------------------------------------
+
+
+def map_figure(extent_m: float, quantity_label: str):
+    """A quantity over the placement grid (cells), rotor hubs and the part's base position."""
+    from bokeh.models import ColorBar, LinearColorMapper
+
+    mapper = LinearColorMapper(palette=list(TOL_IRIDESCENT), nan_color=MISSING, low=0, high=1)
+    e = float(extent_m)
+    from bokeh.models import Range1d
+
+    p = new_figure(quantity_label, "right, \u2212y_B (m)", "forward, x_B (m)", width=430,
+                   height=380, match_aspect=True, x_range=Range1d(-e, e), y_range=Range1d(-e, e))
+    s = {"cells": _source(sx=[], sy=[], w=[], h=[], value=[], text=[]),
+         "hubs": _source(sx=[], sy=[], name=[]), "base": _source(sx=[], sy=[])}
+    p.rect(x="sx", y="sy", width="w", height="h", source=s["cells"],
+           fill_color={"field": "value", "transform": mapper}, line_color=None)
+    p.scatter(x="sx", y="sy", source=s["hubs"], marker="circle", size=10, fill_color="white",
+              line_color=COLOURS["limit"], legend_label="rotor hub")
+    p.scatter(x="sx", y="sy", source=s["base"], marker="square_x", size=13, fill_color="white",
+              line_color=COLOURS["marker"], line_width=2, legend_label="part as designed")
+    bar = ColorBar(color_mapper=mapper, width=10, title="", title_text_font=FONT,
+                   major_label_text_font_size="10px")
+    p.add_layout(bar, "right")
+    _legend_style(p, "bottom_left")
+    return p, s, mapper, bar
+
+
+def map_data(xs_m, ys_m, values, base_xy, hubs_xy, hub_names) -> tuple[dict, float, float]:
+    """Cells of a ``(ny, nx)`` map in body x, y (m) with their values; also the colour range.
+
+    ``xs_m``, ``ys_m`` are the part's absolute x and y positions of the grid, in m.
+    """
+    xs = np.asarray(xs_m, float)
+    ys = np.asarray(ys_m, float)
+    v = np.asarray(values, float)
+    X, Y = np.meshgrid(xs, ys)
+    dx = float(np.min(np.diff(xs))) if xs.size > 1 else 0.05
+    dy = float(np.min(np.diff(ys))) if ys.size > 1 else 0.05
+    finite = v[np.isfinite(v)]
+    lo = float(finite.min()) if finite.size else 0.0
+    hi = float(finite.max()) if finite.size else 1.0
+    if hi <= lo:
+        hi = lo + (abs(lo) * 1e-3 or 1.0)
+    hubs = np.asarray(hubs_xy, float).reshape(-1, 2)
+    data = {
+        "cells": {"sx": rounded(-Y), "sy": rounded(X), "w": [dy] * X.size, "h": [dx] * X.size,
+                  "value": rounded(v), "text": [fmt(val) for val in v.ravel()]},
+        "hubs": {"sx": rounded(-hubs[:, 1]), "sy": rounded(hubs[:, 0]), "name": list(hub_names)},
+        "base": {"sx": rounded([-base_xy[1]]), "sy": rounded([base_xy[0]])},
+    }
+    return data, lo, hi

@@ -1,0 +1,105 @@
+"""Placement sweep: executor independence, symmetry, progress, wheel and errors."""
+
+from __future__ import annotations
+
+import json
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from kit import design
+from kit.analysis import sweep
+
+ROOT = Path(__file__).resolve().parents[1]
+FAILED = ("front_left", "rear_right")
+OFFSETS = np.array([-0.02, 0.0, 0.02])
+
+
+@pytest.fixture(scope="module")
+def quad_design():
+    return design.load(ROOT / "data" / "designs" / "survey_quad.toml")
+
+
+@pytest.fixture(scope="module")
+def symmetric_design(quad_design):
+    # the survey quad with its camera and mast moved onto the centre line: every part is then
+    # symmetric under a half turn about z, which maps front_left <-> rear_right (both ccw)
+    parts = tuple(replace(p, position_m=(0.0, 0.0, p.position_m[2]))
+                  if p.name in ("nadir camera", "gnss mast") else p
+                  for p in quad_design.parts)
+    return replace(quad_design, parts=parts)
+
+
+def _arrays(m: sweep.PlacementMap) -> dict:
+    out = {}
+    for case in ("failure", "hover"):
+        cm = getattr(m, case)
+        for name in ("found", "spin_rate_rad_s", "controllability_distance",
+                     "saturation_probability", "h2_norm", "max_thrust_fraction"):
+            out[f"{case}.{name}"] = getattr(cm, name)
+    return out
+
+
+@pytest.mark.slow
+def test_thread_and_process_pool_agree(quad_design):
+    with ThreadPoolExecutor(max_workers=2) as ex:
+        a = sweep.placement_sweep(quad_design, "battery", OFFSETS, OFFSETS, FAILED, executor=ex)
+    b = sweep.placement_sweep(quad_design, "battery", OFFSETS, OFFSETS, FAILED)
+    for key, va in _arrays(a).items():
+        np.testing.assert_array_equal(va, _arrays(b)[key], err_msg=key)
+    assert a.to_dict() == b.to_dict()
+
+
+def test_half_turn_symmetric_map_and_progress(symmetric_design):
+    calls = []
+    with ThreadPoolExecutor(max_workers=2) as ex:
+        m = sweep.placement_sweep(symmetric_design, "battery", OFFSETS, OFFSETS, FAILED,
+                                  executor=ex, progress=lambda d, t: calls.append((d, t)))
+    assert calls[0] == (0, 9) and calls[-1] == (9, 9)
+    assert [d for d, _ in calls] == sorted(d for d, _ in calls)
+    f = m.failure
+    assert f.found.all()
+    # (dx, dy) and (-dx, -dy) give the same vehicle turned by 180 deg about z
+    for a in (f.spin_rate_rad_s, f.h2_norm, f.saturation_probability, f.max_thrust_fraction,
+              m.hover.h2_norm):
+        np.testing.assert_allclose(a, a[::-1, ::-1], rtol=1e-6, atol=1e-12)
+    # the distance to uncontrollability is a Nelder-Mead minimum (control.controllability):
+    # it repeats to about 1e-5 relative only
+    np.testing.assert_allclose(f.controllability_distance, f.controllability_distance[::-1, ::-1],
+                               rtol=1e-3)
+    # moving the battery changes the answer (the map is not flat)
+    assert np.ptp(f.spin_rate_rad_s) > 1.0
+    np.testing.assert_allclose(m.hover.spin_rate_rad_s, 0.0, atol=1e-6)
+    # centre of mass moves by m_battery / m times the offset (parallel-axis bookkeeping)
+    dcom = m.com_m[1, 2, 0] - m.com_m[1, 1, 0]
+    total = sum(p.mass_kg for p in symmetric_design.parts) + sum(
+        r.mass_kg for r in symmetric_design.rotors)
+    assert dcom == pytest.approx(0.42 / total * 0.02, rel=1e-9)  # battery 0.42 kg (file)
+    d = m.to_dict()
+    json.dumps(d, allow_nan=False)
+    assert d["summary"]["failure"]["found"] == 9
+    assert "<table" in m._repr_html_()
+
+
+def test_wheel_sweep_and_html_escaping(quad_design):
+    wq = design.load(ROOT / "data" / "designs" / "wheel_quad.toml")
+    with ThreadPoolExecutor(max_workers=1) as ex:
+        m = sweep.placement_sweep(wq, "wheel", [0.0, 0.01], [0.0], executor=ex)
+    assert m.failure is None and m.shape == (1, 2)
+    assert m.com_m[0, 1, 0] > m.com_m[0, 0, 0]
+    named = replace(quad_design, name="<script>x</script>")
+    with ThreadPoolExecutor(max_workers=1) as ex:
+        m2 = sweep.placement_sweep(named, "battery", [0.0], [0.0], executor=ex)
+    assert "<script>" not in m2._repr_html_()
+
+
+def test_bad_inputs(quad_design):
+    with pytest.raises(ValueError, match="battery"):
+        sweep.placement_sweep(quad_design, "batery", [0.0], [0.0])
+    with pytest.raises(ValueError, match="wheel"):
+        sweep.base_position(quad_design, "wheel")
+    with pytest.raises(ValueError, match="front_left"):
+        sweep.placement_sweep(quad_design, "battery", [0.0], [0.0], ("front-left",))

@@ -206,6 +206,8 @@ def main(argv: list[str] | None = None) -> int:
             raise
         print(f"rotorbook: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT if isinstance(exc, RecordError) else EXIT_FAILED
+    except BrokenPipeError:  # pragma: no cover - output piped into head and the like
+        return EXIT_OK
     except KeyboardInterrupt:  # pragma: no cover
         print("rotorbook: interrupted", file=sys.stderr)
         return 130

@@ -176,21 +176,89 @@ def loader_js() -> str:
     )
 
 
-def embed_html(model) -> str:
-    """One HTML fragment rendering ``model`` (a figure or layout already in a Document).
+class Embedder:
+    """Static HTML of one Bokeh layout, serialising the document once.
 
-    The document JSON sits on its own line (``const docs_json = ...;``) so a notebook sanitiser
-    can replace it whole. The figure waits up to 15 s for BokehJS, then says it is missing.
+    Bokeh's full serialisation costs tens of milliseconds per figure; after the first one only
+    the data of sources that changed is encoded again and put into the stored document JSON.
+    A change to any other property (a title, a colour range) makes the next call serialise the
+    whole document again. Changes are followed through ``Document.on_change``.
+    """
+
+    def __init__(self, model) -> None:
+        from bokeh.document import Document
+
+        if model.document is None:
+            Document().add_root(model)
+        self.model = model
+        self._json: dict | None = None
+        self._sources: dict = {}
+        self._dirty: set = set()
+        model.document.on_change(self._on_change)
+
+    def _on_change(self, event) -> None:
+        from bokeh.models import ColumnDataSource
+
+        m = getattr(event, "model", None)
+        if isinstance(m, ColumnDataSource) and getattr(event, "attr", "data") == "data":
+            self._dirty.add(m.id)
+        else:
+            self._json = None
+
+    def doc_json(self) -> dict:
+        from bokeh.core.serialization import Serializer
+
+        doc = self.model.document
+        if self._json is None:
+            self._json = doc.to_json(deferred=False)
+            self._sources = {}
+            _index_sources(self._json, self._sources)
+            self._dirty.clear()
+        elif self._dirty:
+            ser = Serializer(deferred=False)
+            for mid in self._dirty:
+                src = doc.get_model_by_id(mid)
+                if src is None or mid not in self._sources:
+                    self._json = None
+                    return self.doc_json()
+                self._sources[mid]["data"] = ser.encode(src.data)
+            self._dirty.clear()
+        return self._json
+
+    def html(self) -> str:
+        return embed_html(self.model, self.doc_json())
+
+
+def _index_sources(obj, out: dict) -> None:
+    """Map ColumnDataSource ids to their ``attributes`` dicts inside a document's JSON."""
+    if isinstance(obj, dict):
+        if obj.get("name") == "ColumnDataSource" and "attributes" in obj:
+            out[obj["id"]] = obj["attributes"]
+        for v in obj.values():
+            _index_sources(v, out)
+    elif isinstance(obj, list):
+        for v in obj:
+            _index_sources(v, out)
+
+
+def embed_html(model, doc_json: dict | None = None) -> str:
+    """One HTML fragment rendering ``model`` (a figure or layout).
+
+    ``doc_json`` is the document's JSON when the caller has it (:class:`Embedder`). The
+    document JSON sits on its own line (``const docs_json = ...;``) so a notebook sanitiser can
+    replace it whole. The figure waits up to 15 s for BokehJS, then says it is missing.
     """
     from bokeh.document import Document
 
-    doc = model.document
-    if doc is None:
-        doc = Document()
-        doc.add_root(model)
+    if doc_json is None:
+        doc = model.document
+        if doc is None:
+            doc = Document()
+            doc.add_root(model)
+        doc_json = doc.to_json(deferred=False)
     n = next(_IDS)
     docid, elid = f"rb-doc-{n}", f"rb-fig-{n}"
-    docs_json = {docid: doc.to_json(deferred=False)}
+    docs_json = {docid: doc_json}
     items = [{"docid": docid, "roots": {model.id: elid}, "root_ids": [model.id]}]
     missing = html.escape("This figure needs BokehJS: open the workbook in JupyterLab started "
                           "with `make lab` (it serves BokehJS from the local installation).")
@@ -577,3 +645,8 @@ def map_data(xs_m, ys_m, values, base_xy, hubs_xy, hub_names) -> tuple[dict, flo
         "base": {"sx": rounded([-base_xy[1]]), "sy": rounded([base_xy[0]])},
     }
     return data, lo, hi
+
+
+def html_escape(text: str) -> str:
+    """HTML-escape a string (for readouts built outside the table helpers)."""
+    return html.escape(str(text))

@@ -195,7 +195,7 @@ def design_control(veh: Vehicle, eq: Equilibrium) -> LinearControl:
     As = A * sx[None, :] / sx[:, None]
     Bs = B * su[None, :] / sx[:, None]
     rank, dist = controllability(As, Bs)
-    controllable = rank == 4 and dist > CONTROLLABILITY_TOL
+    controllable = bool(rank == 4 and dist > CONTROLLABILITY_TOL)
     note = "yaw rate r is held at its equilibrium value: the yaw channel is outside this model"
     try:
         K, _ = lqr(A, B, Q, R)
@@ -209,4 +209,5 @@ def design_control(veh: Vehicle, eq: Equilibrium) -> LinearControl:
     C = np.zeros((2, 4))
     C[0, 2] = C[1, 3] = 1.0
     h2 = h2_norm(A - B @ K, Bd, C)
-    return LinearControl(inputs, A, B, Bd, Q, R, controllable, rank, dist, K, poles, h2, note)
+    return LinearControl(inputs, A, B, Bd, Q, R, controllable, rank, float(dist), K, poles, h2,
+                         note)

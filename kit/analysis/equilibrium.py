@@ -234,6 +234,27 @@ def _polish(prob: _Problem, v: np.ndarray) -> tuple[np.ndarray, float]:
     return best
 
 
+def _non_spinning(prob: _Problem, veh: Vehicle) -> tuple | None:
+    """The non-spinning member (w = 0, n = e_z) when one exists within the limits.
+
+    At ``w = 0`` the residual is linear in the thrusts, so the least-effort member is the
+    minimum-norm solution; it is kept when it lies within ``0 <= f <= f_max``.
+    """
+    v0 = np.r_[0.0, 0.0, 0.0, np.zeros(prob.k)]
+    r0 = prob.residual(v0)
+    v1 = np.r_[0.0, 0.0, 0.0, np.ones(prob.k)]
+    Jf = prob.jacobian(v1)[:, 3:]
+    if not np.all(np.isfinite(Jf)):
+        return None
+    f = np.linalg.lstsq(Jf, -r0, rcond=None)[0]
+    v = np.r_[0.0, 0.0, 0.0, f]
+    res = float(np.max(np.abs(prob.residual(v))))
+    fmax = veh.max_thrust_n[prob.idx] / prob.f_s
+    if res > RESIDUAL_TOL or np.any(f < 0) or np.any(f > fmax * (1 + 1e-9)):
+        return None
+    return float(f @ f), v, res
+
+
 def _least_effort(prob: _Problem, veh: Vehicle, sense: int, starts) -> tuple | None:
     k = prob.k
     fmax = veh.max_thrust_n[prob.idx] / prob.f_s
@@ -385,7 +406,12 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None) 
                f"{MAX_SPIN_RAD_S:g} rad/s and spin-axis tilts up to "
                f"{math.degrees(MAX_TILT_RAD):g} deg searched, both senses)")
         return _make(veh, failed, thrust_ratio, False, why)
-    cands.sort(key=lambda c: (round(c[0], 9), -c[1]))
+    if not thrust_ratio:
+        still = _non_spinning(prob, veh)
+        if still is not None:
+            cands.append((still[0], 0, still))
+    # least effort first; ties (within 1e-9 relative) go to the non-spinning member, then w > 0
+    cands.sort(key=lambda c: (round(c[0], 9), abs(c[1]), -c[1]))
     cost, sense, (c, v, res) = cands[0]
     other = None
     if len(cands) > 1:

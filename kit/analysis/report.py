@@ -8,6 +8,7 @@ renamed).
 from __future__ import annotations
 
 import html
+import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -18,11 +19,33 @@ from kit.analysis.equilibrium import Equilibrium, all_cases, solve
 from kit.analysis.hover import Hover, analyse_hover
 from kit.analysis.htmltable import checks_html, num, table
 from kit.analysis.risk import SaturationRisk, saturation_risk
+from kit.analysis.spin import (
+    AXIS_NAMES,
+    SpinAxisAlignment,
+    SpinStability,
+    principal_spin_stability,
+    spin_axis_alignment,
+)
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import WheelStudy, wheel_study
 from kit.design import Design, load
 
 SCHEMA = "rotorbook.analysis/1"
+
+
+def plain(obj):
+    """Plain JSON types: numpy scalars and arrays unwrapped, NaN and infinities as None."""
+    if isinstance(obj, dict):
+        return {str(k): plain(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [plain(v) for v in obj]
+    if hasattr(obj, "tolist"):
+        return plain(obj.tolist())
+    if isinstance(obj, bool) or obj is None or isinstance(obj, str | int):
+        return obj
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    raise TypeError(f"not JSON data: {type(obj).__name__}")
 
 
 @dataclass(frozen=True)
@@ -64,6 +87,40 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None) -> CaseR
 
 
 @dataclass(frozen=True)
+class SpinSection:
+    """Torque-free spin stability at the spin rates found, and each spin axis's alignment."""
+
+    stability: SpinStability
+    alignment: SpinAxisAlignment
+
+    def to_dict(self) -> list[dict]:
+        """One entry per spinning equilibrium (the ``spin_stability`` list of the schema)."""
+        out = []
+        rates = list(self.stability.spin_rates_rad_s)
+        for row in self.alignment.rows():
+            m = rates.index(abs(row["spin_rate_rad_s"]))
+            row["growth_rate_1_s"] = {AXIS_NAMES[k]: float(self.stability.growth_rate_1_s[k, m])
+                                      for k in range(3)}
+            out.append(row)
+        return out
+
+    def checks(self) -> list[checks_mod.Check]:
+        return [checks_mod.is_true("spin axis away from the intermediate principal axis",
+                                   not r["near_intermediate_axis"], r["case"])
+                for r in self.alignment.rows()]
+
+    def _repr_html_(self) -> str:
+        return self.alignment._repr_html_() + self.stability._repr_html_()
+
+
+def spin_section(veh: Vehicle, eqs) -> SpinSection:
+    """Spin stability of the principal axes at every |spin rate| found, and alignments."""
+    align = spin_axis_alignment(veh, eqs)
+    rates = sorted({abs(float(w)) for w in align.spin_rates_rad_s})
+    return SpinSection(principal_spin_stability(veh, rates), align)
+
+
+@dataclass(frozen=True)
 class DesignReport:
     """The whole analysis of one design."""
 
@@ -71,7 +128,7 @@ class DesignReport:
     vehicle: Vehicle
     hover: Hover
     cases: tuple[CaseResult, ...]
-    spin: object | None
+    spin: SpinSection
     wheel: WheelStudy
     checks: tuple[checks_mod.Check, ...]
 
@@ -86,8 +143,9 @@ class DesignReport:
         return None
 
     def to_dict(self) -> dict:
+        """The JSON document of schema ``rotorbook.analysis/1`` (plain types, SI)."""
         d, mp = self.design, self.vehicle.mp
-        return {
+        return plain({
             "schema": SCHEMA,
             "kit_version": __version__,
             "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
@@ -99,7 +157,7 @@ class DesignReport:
             ],
             "hover": self.hover.to_dict(),
             "cases": [c.to_dict() for c in self.cases],
-            "spin_stability": [] if self.spin is None else self.spin.to_dict(),
+            "spin_stability": self.spin.to_dict(),
             "wheel_study": self.wheel.to_dict(),
             "checks": [c.to_dict() for c in self.checks],
             "assumptions": [
@@ -111,7 +169,7 @@ class DesignReport:
                    if d.control.disturbance_time_constant_assumed
                    else f"{d.control.disturbance_time_constant_s:g} s"),
             ],
-        }
+        })
 
     def summary_text(self) -> str:
         d, h = self.design, self.hover
@@ -160,20 +218,12 @@ def analyze(design: Design, wheel: bool = True, executor=None) -> DesignReport:
     veh = Vehicle.from_design(design)
     hover = analyse_hover(veh)
     cases = tuple(analyse_case(veh, f, r) for f, r in all_cases(veh))
-    spin = None
-    try:
-        from kit.analysis import spin as spin_mod
-    except ImportError:  # pragma: no cover - spin module optional during development
-        spin_mod = None
-    if spin_mod is not None:
-        spin = spin_mod.spin_report(veh, [c.eq for c in cases])
-    study = wheel_study(veh, executor=executor) if wheel else wheel_study(
-        veh, cases=[]) if design.wheel is not None else wheel_study(veh)
+    spin = spin_section(veh, [c.eq for c in cases])
+    study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
     checks = list(checks_mod.hover_checks(hover, design.review))
     for c in cases:
         checks += c.checks
-    if spin is not None:
-        checks += spin.checks()
+    checks += spin.checks()
     return DesignReport(design, veh, hover, cases, spin, study, tuple(checks))
 
 

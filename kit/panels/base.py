@@ -116,15 +116,18 @@ class Panel:
             self.message = ""
             self.readout_html = self.update()
         except Exception as exc:  # noqa: BLE001 - shown in the panel, never as a traceback
-            self.message = f"{type(exc).__name__}: {exc}"
+            self.message = str(exc) if isinstance(exc, ValueError) else (
+                f"{type(exc).__name__}: {exc}")
             self.readout_html = ""
-        self.last_update_s = time.perf_counter() - t0
         self._msg.value = f"<div class='rb-panel'>{message_html(self.message)}</div>"
         self._readout.value = f"<div class='rb-panel'>{self.readout_html}</div>"
         self.render()
+        self.last_update_s = time.perf_counter() - t0
 
     def figure_html(self) -> str:
-        return plots.embed_html(self.layout)
+        if getattr(self, "_embedder", None) is None:
+            self._embedder = plots.Embedder(self.layout)
+        return self._embedder.html()
 
     def render(self) -> None:
         """Rewrite the Output with the current figures (one display_data output)."""

@@ -1,0 +1,224 @@
+"""Panels, headless: set a control's value, the figure data and readouts follow kit.analysis."""
+
+import subprocess
+import sys
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+import pytest
+
+from kit import plots
+from kit.analysis.equilibrium import solve
+from kit.analysis.hover import analyse_hover
+from kit.analysis.report import analyse_case
+from kit.analysis.sweep import placement_sweep
+from kit.analysis.vehicle import Vehicle
+from kit.analysis.wheel import momentum_grid, wheel_study
+from kit.design import load
+from kit.panels import (FailurePanel, HoverPanel, OverviewPanel, PlacementPanel, TextProgress,
+                        WheelPanel)
+from kit.panels.hover import with_payload
+from tests.conftest import ROOT
+
+DESIGNS = ROOT / "data" / "designs"
+
+
+@pytest.fixture(scope="module")
+def survey():
+    return load(DESIGNS / "survey_quad.toml")
+
+
+@pytest.fixture(scope="module")
+def wheel_quad():
+    return load(DESIGNS / "wheel_quad.toml")
+
+
+def _snapshot_ok(panel, *values):
+    bundle = panel._repr_mimebundle_()
+    assert "application/vnd.jupyter.widget-view+json" in bundle
+    text = bundle["text/html"]
+    assert text.count("Bokeh.embed.embed_items") >= 1 and 'class="rb-figure"' in text
+    for v in values:
+        assert v in text and v in bundle["text/plain"]
+    return text
+
+
+def test_import_has_no_side_effects_and_stays_light():
+    code = ("import sys, kit.panels, kit.panels.progress, kit.plots; "
+            "print(sorted(m for m in ('bokeh', 'ipywidgets') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "[]" and out.stderr == ""
+
+
+def test_overview(survey):
+    p = OverviewPanel(survey)
+    veh = p.vehicle
+    data = p.sources["rotors"].data
+    np.testing.assert_allclose(data["sy"], veh.mp.rotor_positions_m[:, 0], rtol=1e-5)
+    p.sort_by.value = "mass"
+    masses = [m for _, m, _ in p.view.parts]
+    assert masses == sorted(masses, reverse=True)
+    contrib = {n: (m, J) for n, m, J in veh.mp.contribution_kg_m2()}
+    for name, m, J in p.view.parts:
+        assert m == contrib[name][0]
+        np.testing.assert_allclose(J, contrib[name][1])
+    text = _snapshot_ok(p, "mass")
+    assert "battery" in text and "kg m\u00b2" in text
+
+
+def test_hover_payload_slider(survey):
+    p = HoverPanel(survey)
+    veh = p.vehicle
+    h0 = analyse_hover(veh)
+    np.testing.assert_allclose(p.sources["thrust"]["bars"].data["thrust"], h0.thrust_n,
+                               rtol=1e-5)
+    p.payload.value = 0.4
+    h1 = analyse_hover(with_payload(veh, 0.4))
+    np.testing.assert_allclose(p.sources["thrust"]["bars"].data["thrust"], h1.thrust_n,
+                               rtol=1e-5)
+    np.testing.assert_allclose(p.sources["torque"]["bars"].data["margin"],
+                               h1.torque_margin_n_m, rtol=1e-5)
+    assert p.view.hover.thrust_to_weight == pytest.approx(h1.thrust_to_weight)
+    assert plots.fmt(h1.thrust_to_weight, 3) in p.readout_html
+    _snapshot_ok(p, "0.4 kg")
+
+
+def test_failure_panel_follows_analyse_case(survey):
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    veh = p.vehicle
+    c = analyse_case(veh, ("front_left",))
+    np.testing.assert_allclose(p.sources["thrust"]["bars"].data["thrust"], c.eq.thrust_n,
+                               rtol=1e-4, atol=1e-6)
+    np.testing.assert_allclose(sorted(p.sources["poles"]["closed"].data["re"]),
+                               sorted(c.ctl.closed_loop_poles.real), rtol=1e-4)
+    assert plots.fmt(c.eq.spin_rate_rad_s, 3, "rad/s") in p.readout_html
+    assert p.sources["circle"]["path"].data["x"][0] == pytest.approx(c.eq.circle_radius_m,
+                                                                      rel=1e-5)
+    # another failure set
+    p.failed.value = ("front_left", "rear_right")
+    c2 = analyse_case(veh, ("front_left", "rear_right"))
+    np.testing.assert_allclose(p.sources["thrust"]["bars"].data["thrust"], c2.eq.thrust_n,
+                               rtol=1e-4, atol=1e-6)
+    assert p.sources["thrust"]["bars"].data["colour"][0] == plots.COLOURS["failed"]
+    assert p.message == ""
+    _snapshot_ok(p, "front_left, rear_right")
+
+
+def test_failure_panel_thrust_ratio_sliders(survey):
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    p.mode.value = "thrust ratios"  # starts from the least-effort member, rounded to 0.01
+    ratio = p.thrust_ratio()
+    assert set(ratio) == {"front_right", "rear_right", "rear_left"}
+    assert p.ratios["front_left"].disabled
+    p.ratios["rear_right"].value = 0.22
+    eq = solve(p.vehicle, ("front_left",), p.thrust_ratio())
+    assert p.view.eq.found == eq.found
+    if eq.found:
+        assert p.view.eq.spin_rate_rad_s == pytest.approx(eq.spin_rate_rad_s, rel=1e-6)
+    _snapshot_ok(p, "rear_right 0.22")
+
+
+def test_failing_every_rotor_shows_a_message(survey):
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    p.failed.value = tuple(survey.rotor_names)
+    assert "every rotor has failed" in p.message
+    assert "every rotor has failed" in p._repr_mimebundle_()["text/html"]
+    assert p.sources["thrust"]["bars"].data["thrust"] == []
+    p.failed.value = ("front_left",)  # and it recovers
+    assert p.message == "" and p.view.eq.found
+
+
+def test_failure_panel_simulation(survey):
+    p = FailurePanel(survey, failed=("front_left", "rear_right"), simulate=False, horizon_s=1.0)
+    assert p.sources["response"]["series"].data["t"] == []
+    p.simulate()
+    t = p.sources["response"]["series"].data["t"]
+    assert t[0] == 0.0 and t[-1] == pytest.approx(1.0)
+    assert p.sim is not None and "final spin rate" in p.readout_html
+    p.horizon.value = 1.5  # a change marks the response out of date
+    assert p.sim is None and p.sources["response"]["series"].data["t"] == []
+
+
+@pytest.fixture(scope="module")
+def small_study(wheel_quad):
+    veh = Vehicle.from_design(wheel_quad)
+    grid = momentum_grid(wheel_quad.wheel.max_momentum_n_m_s, per_side=4)
+    return wheel_study(veh, cases=[((), None), (("left", "right"), None)], h_grid=grid)
+
+
+def test_wheel_panel_marker_and_sizing(wheel_quad, small_study):
+    p = WheelPanel(wheel_quad, study=small_study)
+    curve = small_study.curves[0]
+    np.testing.assert_allclose(p.sources["curve"].data["h"], curve.h_n_m_s, rtol=1e-5)
+    h = 0.3 * small_study.h_max_n_m_s
+    p.h.value = h
+    h = p.h.value  # the slider's step
+    ok = np.isfinite(curve.h2_ratio)
+    expect = np.interp(h, curve.h_n_m_s[ok], curve.h2_ratio[ok])
+    assert p.sources["marker"].data["h"] == [pytest.approx(h, rel=1e-5)]
+    assert p.sources["marker"].data["ratio"][0] == pytest.approx(expect, rel=1e-5)
+    sizing = wheel_study(p.vehicle, cases=[], chosen_h_n_m_s=h)
+    assert p.view.wheel_speed_rad_s == pytest.approx(sizing.wheel_speed_rad_s)
+    assert p.view.stored_energy_j == pytest.approx(sizing.stored_energy_j)
+    assert p.view.gyro_torque_n_m == pytest.approx(abs(h) * small_study.max_body_rate_rad_s)
+    assert plots.fmt(sizing.stored_energy_j, 3, "J") in p.readout_html
+    p.case.value = "failed: left, right"
+    np.testing.assert_allclose(p.sources["curve"].data["ratio"],
+                               small_study.curves[1].h2_ratio, rtol=1e-5)
+    _snapshot_ok(p, "failed: left, right")
+
+
+def test_wheel_panel_without_a_wheel(survey):
+    p = WheelPanel(survey)
+    assert "no [wheel]" in p.message and p.h.disabled
+    _snapshot_ok(p, "no failure")
+
+
+def test_placement_panel(survey):
+    with ThreadPoolExecutor(2) as ex:
+        p = PlacementPanel(survey, part="battery", failed=("front_left",), span_m=0.02,
+                           points=3, executor=ex)
+        assert "not computed" in p.message
+        p.compute()
+        assert p.progress.bar.value == p.progress.bar.max == 9
+        ref = placement_sweep(survey, "battery", [-0.02, 0, 0.02], [-0.02, 0, 0.02],
+                              ("front_left",), executor=ex)
+    np.testing.assert_allclose(p.sources["cells"].data["value"],
+                               ref.failure.saturation_probability.ravel(), rtol=1e-5)
+    p.quantity.value = "spin rate (rad/s)"
+    np.testing.assert_allclose(p.sources["cells"].data["value"],
+                               ref.failure.spin_rate_rad_s.ravel(), rtol=1e-5)
+    assert p.mapper.low == pytest.approx(np.nanmin(ref.failure.spin_rate_rad_s), rel=1e-5)
+    p.points.value = 5
+    assert "press 'compute map'" in p.readout_html
+    _snapshot_ok(p, "battery", "spin rate (rad/s)")
+
+
+def test_text_progress():
+    import io
+
+    s = io.StringIO()
+    bar = TextProgress("sweep", stream=s, width=10)
+    bar(0, 4)
+    bar(2, 4)
+    bar(4, 4)
+    out = s.getvalue()
+    assert "[#####.....] 2/4" in out and out.endswith("\n") and "[##########] 4/4" in out
+
+
+def test_bokehjs_is_served_by_the_extension():
+    from kit.panels import serve
+
+    class App:
+        def __init__(self):
+            from tornado.web import Application
+
+            self.web_app = Application(base_url="/")
+            self.log = __import__("logging").getLogger("test")
+
+    app = App()
+    serve._load_jupyter_server_extension(app)
+    patterns = [r.matcher.regex.pattern for rule in app.web_app.default_router.rules
+                for r in getattr(rule.target, "rules", [rule])]
+    assert any("rotorbook/bokehjs" in p for p in patterns)

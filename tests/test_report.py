@@ -1,0 +1,76 @@
+"""The whole-design report and `rotorbook analyze`: schema, exit codes, checks."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from kit import cli
+from kit.analysis.report import SCHEMA, analyze, plain
+from kit.design import load
+
+DESIGNS = sorted(Path(__file__).parent.parent.joinpath("data", "designs").glob("*.toml"))
+
+
+@pytest.fixture(scope="module", params=DESIGNS, ids=lambda p: p.stem)
+def report(request):
+    return analyze(load(request.param))
+
+
+def test_schema_keys(report):
+    d = report.to_dict()
+    json.dumps(d, allow_nan=False)  # plain JSON, no NaN
+    assert d["schema"] == SCHEMA
+    assert set(d["design"]) == {"name", "revision", "sha256"}
+    assert set(d["mass_properties"]) >= {"mass_kg", "com_m", "inertia_kg_m2",
+                                         "principal_moments_kg_m2", "principal_axes"}
+    assert set(d["hover"]) >= {"thrust_n", "thrust_to_weight", "hover_thrust_fraction",
+                               "allocation_rank", "torque_margin_n_m"}
+    case_keys = {"failed", "thrust_ratio", "equilibrium_found", "reason", "free_directions",
+                 "thrust_n", "omega_bar_rad_s", "n_bar", "spin_rate_rad_s", "tilt_deg",
+                 "reduced_model", "controllable", "controllability_distance", "lqr",
+                 "saturation_probability_per_s", "h2_norm", "checks"}
+    for c in d["cases"]:
+        assert set(c) >= case_keys
+        if c["lqr"] is not None:
+            assert set(c["lqr"]) >= {"Q", "R", "K", "closed_loop_poles"}
+            assert all(len(p) == 2 for p in c["lqr"]["closed_loop_poles"])
+    assert d["cases"][0]["failed"] == []
+    assert set(d["wheel_study"]) >= {"h_n_m_s", "h2_ratio", "flags"}
+    assert isinstance(d["spin_stability"], list)
+    assert all(set(k) >= {"name", "value", "limit", "passed"} for k in d["checks"])
+
+
+def test_every_case_has_checks_and_summary(report):
+    assert len(report.checks) > 3
+    text = report.summary_text()
+    assert report.design.name in text and "checks:" in text
+    assert "<table" in report._repr_html_()
+
+
+def test_plain_converts_numpy_and_nan():
+    import numpy as np
+
+    assert plain({"a": np.float64(1.5), "b": np.array([1, 2]), "c": float("nan"),
+                  "d": np.bool_(True)}) == {"a": 1.5, "b": [1, 2], "c": None, "d": True}
+
+
+def test_cli_analyze_json_and_exit_codes(tmp_path, capsys):
+    path = str(DESIGNS[0])
+    assert cli.main(["analyze", path, "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["schema"] == SCHEMA
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[design]\nname = "x"\n', encoding="utf-8")
+    assert cli.main(["analyze", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err and "revision" in err
+
+
+def test_cli_analyze_subprocess_readable_summary():
+    r = subprocess.run([sys.executable, "-m", "kit.cli", "analyze", str(DESIGNS[0])],
+                       capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    assert "cases:" in r.stdout and "checks:" in r.stdout

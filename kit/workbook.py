@@ -31,7 +31,7 @@ CAUTIONS = (
 )
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Opened:
     """A design opened in a workbook: the design, its mass properties and warnings."""
 
@@ -39,6 +39,9 @@ class Opened:
     design: Design
     mp: MassProperties
     warnings: tuple[str, ...]
+
+    def __repr__(self) -> str:
+        return f"<design {self.design.name!r} revision {self.design.revision!r}>"
 
     def _repr_html_(self) -> str:
         d, mp = self.design, self.mp
@@ -86,6 +89,9 @@ class Equations:
                 self.rows.append((label, line.strip()))
                 label = ""
 
+    def __repr__(self) -> str:
+        return f"<equations of structure {self.structure.key}>"
+
     def _repr_latex_(self) -> str:
         body = r" \\ ".join((rf"\text{{{label}:}}\quad & " if label else "& ") + tex
                              for label, tex in self.rows)
@@ -109,6 +115,29 @@ class Checks:
         return {CHECKS_MIME: json.loads(json.dumps(data)),
                 "text/html": f"<p><b>{text}</b></p>" + checks_html(self.checks),
                 "text/plain": text}
+
+
+class CasesTable:
+    """One row per equilibrium case: spin, tilt, busiest rotor, control, risk."""
+
+    def __init__(self, cases) -> None:
+        self.cases = list(cases)
+
+    def _repr_html_(self) -> str:
+        rows = []
+        for c in self.cases:
+            eq = c.eq
+            if not eq.found:
+                rows.append((eq.label, "no: " + eq.reason, None, None, None, None, None, None))
+                continue
+            rows.append((eq.label, "yes", eq.spin_rate_rad_s, eq.tilt_deg,
+                         float(eq.thrust_fraction[eq.working].max()), c.ctl.controllable,
+                         c.ctl.controllability_distance,
+                         None if c.risk is None else c.risk.probability_per_s))
+        return table(["case", "equilibrium", "spin rate (rad/s)", "tilt (deg)",
+                      "busiest rotor (fraction of max)", "controllable",
+                      "PBH distance (relative)", "P(saturation) per s"], rows,
+                     "Relaxed-hover cases")
 
 
 class Cautions:

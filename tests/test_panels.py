@@ -15,8 +15,14 @@ from kit.analysis.sweep import placement_sweep
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import momentum_grid, wheel_study
 from kit.design import load
-from kit.panels import (FailurePanel, HoverPanel, OverviewPanel, PlacementPanel, TextProgress,
-                        WheelPanel)
+from kit.panels import (
+    FailurePanel,
+    HoverPanel,
+    OverviewPanel,
+    PlacementPanel,
+    TextProgress,
+    WheelPanel,
+)
 from kit.panels.hover import with_payload
 from tests.conftest import ROOT
 

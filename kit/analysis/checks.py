@@ -78,3 +78,19 @@ def case_checks(eq, ctl, risk, review) -> list[Check]:
     out.append(at_most("saturation probability", p, review.max_saturation_probability,
                        "per s", case))
     return out
+
+
+def wheel_checks(study) -> list[Check]:
+    """Checks of the wheel study: no degeneracy flag within -h_max..h_max, per case; and the
+    wheel does not make the no-failure sensitivity worse at h_max."""
+    if not study.available:
+        return []
+    out = []
+    for c in study.curves:
+        out.append(Check("wheel range clear of controllability degeneracies", len(c.flags),
+                         0, not c.flags, "flags", c.label, "=="))
+    nominal = study.curve(())
+    if nominal is not None:
+        top = float(nominal.h2_ratio[-1])
+        out.append(at_most("H2 ratio at +h_max, no failure", top, 1.0, "", "no failure"))
+    return out

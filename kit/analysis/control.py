@@ -45,7 +45,7 @@ STATE_NAMES = ("p", "q", "n_x", "n_y")
 CONTROLLABILITY_TOL = 1e-6
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class LinearControl:
     """Reduced model, controllability and LQR at one equilibrium.
 
@@ -80,6 +80,12 @@ class LinearControl:
     closed_loop_poles: np.ndarray | None
     h2_norm: float
     note: str = ""
+
+    def __repr__(self) -> str:
+        state = "controllable" if self.controllable else "not controllable"
+        stab = "LQR stable" if self.stable else "no stabilising LQR"
+        return (f"<LinearControl: {state} (PBH distance {self.controllability_distance:.3g}), "
+                f"{stab}, H2 {self.h2_norm:.4g}>")
 
     @property
     def open_loop_poles(self) -> np.ndarray:

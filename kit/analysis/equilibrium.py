@@ -44,7 +44,7 @@ RESIDUAL_TOL = 1e-9
 MAX_TILT_RAD = math.radians(75.0)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Equilibrium:
     """One relaxed-hover equilibrium (or the reason none was found).
 
@@ -109,6 +109,12 @@ class Equilibrium:
             base += " (thrust ratio " + ", ".join(f"{k}={v:g}" for k, v in
                                                   self.thrust_ratio.items()) + ")"
         return base
+
+    def __repr__(self) -> str:
+        if not self.found:
+            return f"<Equilibrium {self.label}: not found ({self.reason})>"
+        return (f"<Equilibrium {self.label}: spin {self.spin_rate_rad_s:+.4g} rad/s, tilt "
+                f"{self.tilt_deg:.3g} deg, max thrust {self.thrust_n.max():.4g} N>")
 
     def to_dict(self) -> dict:
         return {

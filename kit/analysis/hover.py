@@ -33,7 +33,7 @@ from scipy.optimize import linprog, lsq_linear
 from kit.analysis.vehicle import Vehicle
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Hover:
     """Hover figures of a design (no failure).
 
@@ -65,6 +65,10 @@ class Hover:
     torque_min_n_m: np.ndarray
     induced_power_w: float | None
     feasible: bool
+
+    def __repr__(self) -> str:
+        return (f"<Hover: T/W {self.thrust_to_weight:.4g}, hover fraction "
+                f"{self.hover_thrust_fraction:.4g}, rank {self.allocation_rank}>")
 
     @property
     def torque_margin_n_m(self) -> np.ndarray:

@@ -37,7 +37,8 @@ def table(headers, rows, caption: str = "") -> str:
     head = "".join(f"<th>{html.escape(h)}</th>" for h in headers)
     body = "".join("<tr>" + "".join(f"<td>{cell(v)}</td>" for v in r) + "</tr>" for r in rows)
     cap = f"<caption>{html.escape(caption)}</caption>" if caption else ""
-    return f'<table class="{CSS_CLASS}">{cap}<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+    return (f'<table class="{CSS_CLASS}">{cap}<thead><tr>{head}</tr></thead>'
+            f"<tbody>{body}</tbody></table>")
 
 
 def verdict(ok: bool) -> tuple:

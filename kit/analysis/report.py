@@ -48,7 +48,7 @@ def plain(obj):
     raise TypeError(f"not JSON data: {type(obj).__name__}")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class CaseResult:
     """One equilibrium case with its control, risk and checks."""
 
@@ -56,6 +56,9 @@ class CaseResult:
     ctl: LinearControl
     risk: SaturationRisk | None
     checks: tuple[checks_mod.Check, ...]
+
+    def __repr__(self) -> str:
+        return f"<CaseResult {self.eq.label}>"
 
     def to_dict(self) -> dict:
         d = self.eq.to_dict()
@@ -86,12 +89,15 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None) -> CaseR
                                                                   veh.design.review)))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class SpinSection:
     """Torque-free spin stability at the spin rates found, and each spin axis's alignment."""
 
     stability: SpinStability
     alignment: SpinAxisAlignment
+
+    def __repr__(self) -> str:
+        return f"<SpinSection: {len(self.alignment.labels)} spinning equilibria>"
 
     def to_dict(self) -> list[dict]:
         """One entry per spinning equilibrium (the ``spin_stability`` list of the schema)."""
@@ -120,7 +126,7 @@ def spin_section(veh: Vehicle, eqs) -> SpinSection:
     return SpinSection(principal_spin_stability(veh, rates), align)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class DesignReport:
     """The whole analysis of one design."""
 
@@ -131,6 +137,12 @@ class DesignReport:
     spin: SpinSection
     wheel: WheelStudy
     checks: tuple[checks_mod.Check, ...]
+
+    def __repr__(self) -> str:
+        n_fail = sum(not c.passed for c in self.checks)
+        return (f"<DesignReport {self.design.name!r} rev {self.design.revision!r}: "
+                f"{len(self.cases)} cases, {len(self.checks) - n_fail}/{len(self.checks)} checks "
+                "passed>")
 
     @property
     def passed(self) -> bool:
@@ -209,7 +221,8 @@ class DesignReport:
                          c.risk.probability_per_s if c.risk is not None else None))
         t = table(["case", "equilibrium", "spin (rad/s)", "tilt (deg)", "max thrust (N)",
                    "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
-        head = f"<h4>{html.escape(self.design.name)} (revision {html.escape(self.design.revision)})</h4>"
+        d = self.design
+        head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
         return head + checks_html(self.checks) + t
 
 
@@ -224,6 +237,7 @@ def analyze(design: Design, wheel: bool = True, executor=None) -> DesignReport:
     for c in cases:
         checks += c.checks
     checks += spin.checks()
+    checks += checks_mod.wheel_checks(study)
     return DesignReport(design, veh, hover, cases, spin, study, tuple(checks))
 
 

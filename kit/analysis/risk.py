@@ -46,7 +46,7 @@ from kit.analysis.equilibrium import Equilibrium
 EXPOSURE_S = 1.0
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class SaturationRisk:
     """Thrust-deviation statistics per working rotor and the probability of saturation."""
 
@@ -59,6 +59,9 @@ class SaturationRisk:
     probability_per_s: float
     psd_n2_m2_s: float
     time_constant_s: float
+
+    def __repr__(self) -> str:
+        return f"<SaturationRisk: P = {self.probability_per_s:.3g} per s>"
 
     def to_dict(self) -> dict:
         return {

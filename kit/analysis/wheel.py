@@ -36,7 +36,7 @@ DEGENERACY_TOL = 1e-3
 DIP_FRACTION = 0.3
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class WheelCurve:
     """H2 ratio against h for one case."""
 
@@ -49,6 +49,9 @@ class WheelCurve:
     spin_rate_rad_s: np.ndarray
     controllability_distance: np.ndarray
     flags: tuple[str, ...]
+
+    def __repr__(self) -> str:
+        return f"<WheelCurve {self.label}: {len(self.h_n_m_s)} points, {len(self.flags)} flag(s)>"
 
     @property
     def label(self) -> str:
@@ -71,7 +74,7 @@ class WheelCurve:
         }
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class WheelStudy:
     """The wheel study of a design: curves per case and the sizing figures."""
 
@@ -84,6 +87,12 @@ class WheelStudy:
     max_body_rate_rad_s: float
     gyro_torque_n_m: float
     curves: tuple[WheelCurve, ...]
+
+    def __repr__(self) -> str:
+        if not self.available:
+            return "<WheelStudy: none>"
+        return (f"<WheelStudy: h_max {self.h_max_n_m_s:.4g} N m s, {len(self.curves)} case(s), "
+                f"{len(self.flags)} flag(s)>")
 
     @property
     def flags(self) -> list[str]:

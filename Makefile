@@ -24,12 +24,15 @@ chromium:
 	  else echo "chromium is missing and this is not root: browser tests will be skipped"; fi; \
 	fi
 
-## make demo: record every demo design into records/ and print the index pages
+## make demo: check every demo design, record it into records/<design>/, print the index pages
 demo: $(STAMP)
 	$(VENV)/bin/rotorbook check $(DEMO_DESIGNS)
 	@for f in $(DEMO_DESIGNS); do \
-	  if [ -d kit/record ]; then $(VENV)/bin/rotorbook record $$f --out records/$$(basename $$f .toml) --force || exit 1; fi; \
+	  out=records/$$(basename $$f .toml); \
+	  $(VENV)/bin/rotorbook record $$f --out $$out --force 2> >(grep -v 'without encryption' >&2) || exit 1; \
 	done
+	@echo "Calculation records (open in a browser):"
+	@for f in $(DEMO_DESIGNS); do echo "  $(CURDIR)/records/$$(basename $$f .toml)/index.html"; done
 
 lint: $(STAMP)
 	$(PY) -m ruff check kit tests
@@ -39,7 +42,7 @@ lint: $(STAMP)
 test: $(STAMP) chromium lint
 	$(PY) -m pytest -n 2 --dist loadfile tests
 	@if ls workbooks/*.ipynb >/dev/null 2>&1; then \
-	  $(PY) -m pytest -p no:randomly --nbval workbooks --nbval-sanitize-with workbooks/sanitize.cfg -n 2 --dist loadfile; \
+	  $(PY) -m pytest --nbval --nbval-current-env workbooks --nbval-sanitize-with workbooks/sanitize.cfg -n 2 --dist loadfile; \
 	fi
 
 test-fast: $(STAMP)
@@ -51,7 +54,12 @@ bench: $(STAMP)
 
 ## make lab: JupyterLab on 127.0.0.1 over the workbooks
 lab: $(STAMP)
-	$(VENV)/bin/jupyter lab --ip=127.0.0.1 --no-browser workbooks
+	$(VENV)/bin/jupyter lab --ip=127.0.0.1 --no-browser \
+	  --ServerApp.jpserver_extensions="{'kit.panels.serve': True}" --ServerApp.root_dir=$(CURDIR)
+
+## make outputs: regenerate the workbook templates and their stored outputs (commit on its own)
+outputs: $(STAMP)
+	$(PY) workbooks/make_templates.py --execute
 
 ## make snapshots: rewrite the derivation snapshots (commit on its own, saying why)
 snapshots: $(STAMP)

@@ -134,9 +134,9 @@ def random_params(rng, n_rotors, wheel, batch=()):
     """Physically plausible random parameters (positive-definite J, f-independent ranges)."""
     m = rng.uniform(0.5, 3.0, batch)
     # J = R diag(I) R^T + a few rotor spin inertias: positive definite, off-diagonals non-zero.
-    I = rng.uniform(0.01, 0.05, batch + (3,))
+    principal = rng.uniform(0.01, 0.05, batch + (3,))
     Q, _ = np.linalg.qr(rng.normal(size=batch + (3, 3)))
-    J = np.einsum("...ij,...j,...kj->...ik", Q, I, Q)
+    J = np.einsum("...ij,...j,...kj->...ik", Q, principal, Q)
     cols = [m, rng.uniform(9.7, 9.9, batch), J[..., 0, 0], J[..., 1, 1], J[..., 2, 2],
             J[..., 0, 1], J[..., 0, 2], J[..., 1, 2]]
     cols += [rng.uniform(0.0, 0.02, batch) for _ in range(3)]

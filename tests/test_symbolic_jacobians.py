@@ -40,8 +40,14 @@ def test_AB_match_finite_differences_of_reference_field(n, wheel, drag):
         A, B = mod.reduced_AB(xr, f, par)
         x4 = xr[[0, 1, 3, 4]]
         r = xr[2]
-        A_fd = _central_fd(lambda x: reduced_field(x, r, f, par, n, wheel, drag), x4)
-        B_fd = _central_fd(lambda ff: reduced_field(x4, r, ff, par, n, wheel, drag), f)
+        def field_x(x, r=r, f=f, par=par):
+            return reduced_field(x, r, f, par, n, wheel, drag)
+
+        def field_f(ff, x4=x4, r=r, par=par):
+            return reduced_field(x4, r, ff, par, n, wheel, drag)
+
+        A_fd = _central_fd(field_x, x4)
+        B_fd = _central_fd(field_f, f)
         scale_A = np.max(np.abs(A_fd))
         scale_B = np.max(np.abs(B_fd))
         np.testing.assert_allclose(A, A_fd, rtol=1e-6, atol=1e-6 * scale_A)
@@ -81,7 +87,7 @@ def test_eq_jacobian_matches_finite_differences(n, wheel, drag):
         par = random_params(rng, n, wheel)
         z = np.concatenate([[rng.uniform(-5, 5)], rng.uniform(-0.5, 0.5, 2), rng.uniform(1, 8, n)])
         Jz = mod.eq_jacobian(z, par)
-        J_fd = _central_fd(lambda zz: mod.eq_residual(zz, par), z)
+        J_fd = _central_fd(lambda zz, par=par: mod.eq_residual(zz, par), z)
         np.testing.assert_allclose(Jz, J_fd, rtol=1e-6, atol=1e-6 * np.max(np.abs(J_fd)))
 
 

@@ -14,7 +14,6 @@ from kit.symbolic.reduced import reduced_model
 from kit.symbolic.rigid_body import rigid_body, symbols_for
 from kit.symbolic.structure import Structure
 
-
 # ---- Euler's equations with spinning rotors vs sympy.physics.mechanics.KanesMethod -----------
 
 
@@ -33,8 +32,8 @@ def _kane_omega_dot(n_rotors: int, wheel: bool):
     N = me.ReferenceFrame("N")
     B = N.orientnew("B", "Body", (q1, q2, q3), "123")
     B.set_ang_vel(N, u1 * B.x + u2 * B.y + u3 * B.z)
-    O = me.Point("O")
-    O.set_vel(N, 0)
+    origin = me.Point("O")
+    origin.set_vel(N, 0)
     f, x, y = sym.f, sym.rotor("x"), sym.rotor("y")
     s, kappa, kf, ip = sym.rotor("s"), sym.rotor("kappa"), sym.rotor("kf"), sym.rotor("IP")
     zz = me.outer(B.z, B.z)
@@ -46,14 +45,14 @@ def _kane_omega_dot(n_rotors: int, wheel: bool):
     body_inertia = me.inertia(B, J[0, 0], J[1, 1], J[2, 2], J[0, 1], J[1, 2], J[0, 2])
     for i_p, _, _, _ in disks:
         body_inertia = body_inertia - i_p * zz
-    bodies = [me.RigidBody("body", O, B, sp.Symbol("M"), (body_inertia, O))]
+    bodies = [me.RigidBody("body", origin, B, sp.Symbol("M"), (body_inertia, origin))]
     loads = []
     for k, (i_p, rate, xi, yi) in enumerate(disks):
         R = me.ReferenceFrame(f"R{k}")
         R.set_ang_vel(B, rate * B.z)
         R.set_ang_vel(N, B.ang_vel_in(N) + rate * B.z)
-        P = O.locatenew(f"P{k}", xi * B.x + yi * B.y)
-        P.v2pt_theory(O, N, B)
+        P = origin.locatenew(f"P{k}", xi * B.x + yi * B.y)
+        P.v2pt_theory(origin, N, B)
         bodies.append(me.RigidBody(f"disk{k}", P, R, 0, (i_p * zz, P)))
         if k < n_rotors:
             loads.append((P, f[k] * B.z))

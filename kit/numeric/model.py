@@ -7,9 +7,9 @@ to the cache atomically and imports it.
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
-from functools import lru_cache
 from pathlib import Path
 from types import ModuleType
 
@@ -107,7 +107,7 @@ def _from_module(structure: Structure, module: ModuleType) -> Model:
     )
 
 
-@lru_cache(maxsize=None)
+@functools.cache
 def load_model(structure: Structure) -> Model:
     """The generated functions of ``structure`` (cached per structure in memory and on disk).
 
@@ -126,5 +126,7 @@ def load_model(structure: Structure) -> Model:
 
         module = build_module(structure, cse=True, write=True)
     if module.STRUCTURE_KEY != structure.key:
-        raise RuntimeError(f"generated module for {module.STRUCTURE_KEY} loaded for {structure.key}")
+        raise RuntimeError(
+            f"generated module for {module.STRUCTURE_KEY} loaded for {structure.key}"
+        )
     return _from_module(structure, module)

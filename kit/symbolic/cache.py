@@ -119,6 +119,7 @@ def check_source(text: str, key: str) -> str | None:
 def module_from_source(text: str, name: str, path: Path | None = None) -> ModuleType:
     """Execute generated module source ``text`` as a fresh module called ``name``."""
     spec = importlib.util.spec_from_loader(name, loader=None, origin=str(path) if path else None)
+    assert spec is not None
     module = importlib.util.module_from_spec(spec)
     if path is not None:
         module.__file__ = str(path)
@@ -135,6 +136,7 @@ def load_cached(structure: Structure) -> ModuleType | None:
     """
     path = cache_path(structure)
     key = cache_key(structure)
+    reason: str | None
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:

@@ -52,10 +52,10 @@ class FunctionSpec:
 
 class _Printer(NumPyPrinter):
     def _print_Norm3(self, expr):
-        return "_norm3(%s)" % ", ".join(self._print(a) for a in expr.args)
+        return "_norm3({})".format(", ".join(self._print(a) for a in expr.args))
 
     def _print_InvNorm3(self, expr):
-        return "_inv_norm3(%s)" % ", ".join(self._print(a) for a in expr.args)
+        return "_inv_norm3({})".format(", ".join(self._print(a) for a in expr.args))
 
 
 def function_specs(structure: Structure) -> list[FunctionSpec]:
@@ -94,7 +94,8 @@ def function_specs(structure: Structure) -> list[FunctionSpec]:
                      "Attitude right-hand side: omega_dot and n_dot = -omega x n."),
         FunctionSpec("translation_accel", (quat, f, par),
                      (("accel", rb.accel, (3,), "World-frame acceleration [m/s^2]"),),
-                     "World-frame acceleration of the centre of mass, R(quat) sum(f) z_B / m - g e_z."),
+                     "World-frame acceleration of the centre of mass, "
+                     "R(quat) sum(f) z_B / m - g e_z."),
         FunctionSpec("eq_residual", (z, par),
                      (("residual", eq.residual, (4,),
                        "(moment balance x, y, z [N m], sum f nz - m g [N])"),),

@@ -103,12 +103,12 @@ def _latex(expr) -> str:
     for s in expr.free_symbols:
         name = getattr(s, "name", "")
         if name.startswith("Jinv_"):
-            names[s] = r"(J^{-1})_{%s}" % name[5:]
+            names[s] = rf"(J^{{-1}})_{{{name[5:]}}}"
         elif name.endswith("_dot"):
             base = name[:-4]
             names[s] = r"\dot{%s}" % (f"n_{base[1]}" if base.startswith("n") else base)
         elif name.endswith("W_ddot"):
-            names[s] = r"\ddot{%s}_W" % name[0]
+            names[s] = rf"\ddot{{{name[0]}}}_W"
         elif name == "B_2:4j":
             names[s] = r"B_{2:4,j}"
     return sp.latex(expr, symbol_names=names)

@@ -28,7 +28,7 @@ Goldstein, Poole, Safko, *Classical Mechanics*, 3rd ed., sec. 5.5 (from memory).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache
 
 import sympy as sp
 
@@ -66,7 +66,7 @@ class ReducedModel:
     B: sp.Matrix
 
 
-@lru_cache(maxsize=None)
+@cache
 def reduced_model(structure: Structure) -> ReducedModel:
     """Derive the reduced attitude model and its Jacobians by differentiation (unsimplified)."""
     sym = symbols_for(structure)

@@ -36,7 +36,7 @@ algorithmic redundancy and novel vehicles", Int. J. Robotics Research 35(8), 201
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache
 
 import sympy as sp
 
@@ -67,10 +67,10 @@ class InvNorm3(sp.Function):
         return (1 / sp.sqrt(sum(a**2 for a in self.args)))._eval_evalf(prec)
 
     def _latex(self, printer):
-        return r"\left\lVert %s \right\rVert^{-1}" % _norm_arg_latex(self.args, printer)
+        return rf"\left\lVert {_norm_arg_latex(self.args, printer)} \right\rVert^{{-1}}"
 
     def _sympystr(self, printer):
-        return "(1/|%s|)" % _norm_arg_str(self.args, printer)
+        return f"(1/|{_norm_arg_str(self.args, printer)}|)"
 
 
 class Norm3(sp.Function):
@@ -85,22 +85,22 @@ class Norm3(sp.Function):
         return sp.sqrt(sum(a**2 for a in self.args))._eval_evalf(prec)
 
     def _latex(self, printer):
-        return r"\left\lVert %s \right\rVert" % _norm_arg_latex(self.args, printer)
+        return rf"\left\lVert {_norm_arg_latex(self.args, printer)} \right\rVert"
 
     def _sympystr(self, printer):
-        return "|%s|" % _norm_arg_str(self.args, printer)
+        return f"|{_norm_arg_str(self.args, printer)}|"
 
 
 def _norm_arg_str(args, printer):
     if [str(a) for a in args] == ["p", "q", "r"]:
         return "omega"
-    return "(%s)" % ", ".join(printer._print(a) for a in args)
+    return "({})".format(", ".join(printer._print(a) for a in args))
 
 
 def _norm_arg_latex(args, printer):
     if [str(a) for a in args] == ["p", "q", "r"]:
         return r"\omega"
-    return r"\left(%s\right)" % ", ".join(printer._print(a) for a in args)
+    return r"\left({}\right)".format(", ".join(printer._print(a) for a in args))
 
 
 @dataclass(frozen=True, eq=False)
@@ -148,13 +148,13 @@ class Symbols:
     @property
     def jinv_subs(self) -> dict:
         """Substitution that turns ``Jinv_ab`` (and ``Jdet``) into functions of J."""
-        out = {}
+        out: dict = {}
         for sym, expr in self.jinv_defs:
             out[sym] = expr.xreplace(out)
         return out
 
 
-@lru_cache(maxsize=None)
+@cache
 def symbols_for(structure: Structure) -> Symbols:
     """Create the symbols of ``structure`` (cached, so each structure has one set)."""
     par = tuple(sp.Symbol(name, real=True) for name in structure.param_names())
@@ -196,7 +196,8 @@ class RigidBody:
     h : Matrix
         Total angular momentum ``J omega + (h_w + sum_i s_i I_P,i sqrt(f_i/k_f,i)) z``, N m s.
     moment : Matrix
-        ``sum_i r_i x f_i z - sum_i s_i kappa_i f_i z + tau_d - omega x h`` (= ``J omega_dot``), N m.
+        ``sum_i r_i x f_i z - sum_i s_i kappa_i f_i z + tau_d - omega x h``
+        (= ``J omega_dot``), N m.
     omega_dot : Matrix
         ``Jinv * moment``, rad/s^2.
     n_dot : Matrix
@@ -243,7 +244,7 @@ def moment_expr(sym: Symbols, omega, f) -> sp.Matrix:
     return tau + tau_d - omega.cross(h), h
 
 
-@lru_cache(maxsize=None)
+@cache
 def rigid_body(structure: Structure) -> RigidBody:
     """Derive omega_dot, n_dot and the translational acceleration for ``structure``.
 
@@ -268,7 +269,9 @@ def rigid_body(structure: Structure) -> RigidBody:
     n_dot = -sp.Matrix(sym.omega).cross(sp.Matrix(sym.n))
     qw, qx, qy, qz = sym.quat
     q2 = qw**2 + qx**2 + qy**2 + qz**2
-    rz = sp.Matrix([2 * (qx * qz + qw * qy), 2 * (qy * qz - qw * qx), qw**2 - qx**2 - qy**2 + qz**2])
+    rz = sp.Matrix(
+        [2 * (qx * qz + qw * qy), 2 * (qy * qz - qw * qx), qw**2 - qx**2 - qy**2 + qz**2]
+    )
     thrust = sp.Add(*sym.f)
     accel = rz * (thrust / (sym["m"] * q2)) - sp.Matrix([0, 0, sym["g"]])
     return RigidBody(sym, h, moment, omega_dot, n_dot, accel)
@@ -294,7 +297,7 @@ class Equilibrium:
     jacobian: sp.Matrix
 
 
-@lru_cache(maxsize=None)
+@cache
 def equilibrium(structure: Structure) -> Equilibrium:
     """Derive the relaxed-hover residual (moment balance with omega_dot = 0, vertical force).
 

@@ -446,6 +446,7 @@ def torque_figure():
 
 
 def torque_data(torque_max_n_m, torque_min_n_m, margin_n_m) -> dict[str, dict]:
+    """Source data of the torque-authority bars (largest and smallest torque per axis, N m)."""
     return {"bars": {"axis": ["roll x", "pitch y", "yaw z"], "top": rounded(torque_max_n_m),
                      "bottom": rounded(torque_min_n_m), "margin": rounded(margin_n_m)}}
 
@@ -472,6 +473,7 @@ def poles_figure():
 
 
 def poles_data(closed_loop, open_loop) -> dict[str, dict]:
+    """Source data of the pole map: real and imaginary parts (1/s) of both pole sets."""
     def split(z):
         if z is None:
             return {"re": [], "im": []}
@@ -590,6 +592,7 @@ def wheel_curve_data(curve, flagged_h) -> dict[str, dict]:
 
 
 def marker_data(h: float, ratio: float) -> dict[str, dict]:
+    """Source data of the wheel-curve marker: momentum h (N m s) and its H2 ratio."""
     return {"marker": {"h": rounded([h]), "ratio": rounded([ratio])}}
 
 

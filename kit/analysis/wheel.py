@@ -9,6 +9,12 @@ to uncontrollable (relative PBH distance below ``DEGENERACY_TOL``), or where tha
 locally below ``DIP_FRACTION`` of its ``h = 0`` value, are flagged: there the wheel crosses (or
 passes near) a controllability degeneracy and the H2 norm spikes.
 
+.. math::
+
+    \rho(h) = \frac{\|G_h\|_2}{\|G_0\|_2}, \qquad
+    \|G_h\|_2^2 = \operatorname{tr}(C W_h C^{\mathsf T}), \quad
+    A_{cl}(h) W_h + W_h A_{cl}(h)^{\mathsf T} + B_d B_d^{\mathsf T} = 0 .
+
 Sizing at the chosen momentum ``h``: wheel speed ``h / I_w``, stored energy
 ``E = I_w w^2 / 2 = h^2 / (2 I_w)``, and the gyroscopic torque ``|omega x h e_z| <= h |omega|``
 at the largest body rate of the study (the largest equilibrium spin rate).

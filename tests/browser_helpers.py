@@ -1,0 +1,225 @@
+"""Helpers of the real-browser tests: a private JupyterLab server, Chromium, offline routing.
+
+JupyterLab runs on 127.0.0.1 with a random port and token, over a temporary folder holding a
+copy of ``workbooks/*.ipynb`` and ``data/designs``, with its own runtime, config, data and
+IPython folders (nothing of the user's is read), and with :mod:`kit.panels.serve` enabled so
+figures draw live. Chromium is Debian's; every request to another host is aborted and noted.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import secrets
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import time
+import urllib.error
+import urllib.request
+from dataclasses import dataclass, field
+from pathlib import Path
+from urllib.parse import urlsplit
+
+ROOT = Path(__file__).resolve().parents[1]
+CHROMIUM = "/usr/bin/chromium"
+CHROMIUM_ARGS = [
+    "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+    "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-dev-shm-usage",
+]
+LOCAL_HOSTS = {"127.0.0.1", "localhost"}
+ARTIFACTS = ROOT / "artifacts" / "browser"
+#: Longest wait for JupyterLab to answer /api/status, s.
+LAB_START_S = 60.0
+
+
+def cache_dir() -> str:
+    """ROTORBOOK_CACHE_DIR as the Makefile sets it, unless the caller set it."""
+    return os.environ.get("ROTORBOOK_CACHE_DIR", str(ROOT / ".cache" / "rotorbook"))
+
+
+def free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def make_root(tmp: Path) -> Path:
+    """``tmp/workbooks/*.ipynb`` and ``tmp/data/designs``, so ``../data/designs/...`` resolves."""
+    (tmp / "workbooks").mkdir(parents=True)
+    for nb in sorted((ROOT / "workbooks").glob("*.ipynb")):
+        shutil.copy2(nb, tmp / "workbooks" / nb.name)
+    shutil.copytree(ROOT / "data" / "designs", tmp / "data" / "designs")
+    return tmp
+
+
+@dataclass
+class LabServer:
+    """A running JupyterLab: its URL, token and process."""
+
+    url: str
+    token: str
+    proc: subprocess.Popen
+    log_path: Path
+
+    def log_tail(self, n: int = 40) -> str:
+        try:
+            lines = self.log_path.read_text(errors="replace").splitlines()
+        except OSError:
+            return ""
+        return "\n".join(lines[-n:])
+
+    def stop(self) -> None:
+        """Terminate the server (and its kernels, in its process group); kill if it hangs."""
+        if self.proc.poll() is not None:
+            return
+        try:
+            os.killpg(self.proc.pid, signal.SIGTERM)
+        except ProcessLookupError:
+            return
+        try:
+            self.proc.wait(timeout=15)
+        except subprocess.TimeoutExpired:
+            os.killpg(self.proc.pid, signal.SIGKILL)
+            self.proc.wait(timeout=10)
+
+
+def start_lab(tmp: Path) -> LabServer:
+    """Start JupyterLab over ``make_root(tmp / "root")`` and wait until it answers."""
+    root = make_root(tmp / "root")
+    home = tmp / "jupyter"
+    env = dict(os.environ)
+    env.update({
+        "JUPYTER_RUNTIME_DIR": str(home / "runtime"),
+        "JUPYTER_CONFIG_DIR": str(home / "config"),
+        "JUPYTER_DATA_DIR": str(home / "data"),
+        "JUPYTERLAB_SETTINGS_DIR": str(home / "config" / "lab" / "user-settings"),
+        "JUPYTERLAB_WORKSPACES_DIR": str(home / "config" / "lab" / "workspaces"),
+        "IPYTHONDIR": str(home / "ipython"),
+        "JUPYTER_PLATFORM_DIRS": "1",
+        "ROTORBOOK_CACHE_DIR": cache_dir(),
+    })
+    for d in ("runtime", "config", "data", "ipython"):
+        (home / d).mkdir(parents=True, exist_ok=True)
+    port = free_port()
+    token = secrets.token_hex(24)
+    cmd = [
+        sys.executable, "-m", "jupyterlab", "--no-browser",
+        "--ServerApp.ip=127.0.0.1", f"--ServerApp.port={port}",
+        "--ServerApp.port_retries=0", f"--IdentityProvider.token={token}",
+        f"--ServerApp.root_dir={root}",
+        "--ServerApp.jpserver_extensions={'kit.panels.serve': True}",
+        "--LabApp.expose_app_in_browser=True",
+        # no PyPI query for updates, no news: the server itself must not go online either
+        "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
+        "--LabApp.news_url=None",
+        "--LabApp.extension_manager=readonly",
+        "--ServerApp.open_browser=False",
+    ]
+    if hasattr(os, "geteuid") and os.geteuid() == 0:
+        cmd.append("--allow-root")  # CI and `make test` run as root
+    log_path = tmp / "lab.log"
+    log = open(log_path, "wb")  # noqa: SIM115 - closed when the process ends
+    proc = subprocess.Popen(cmd, cwd=root, env=env, stdout=log, stderr=subprocess.STDOUT,
+                            start_new_session=True)
+    log.close()
+    server = LabServer(f"http://127.0.0.1:{port}", token, proc, log_path)
+    deadline = time.monotonic() + LAB_START_S
+    last = ""
+    while time.monotonic() < deadline:
+        if proc.poll() is not None:
+            raise RuntimeError(f"JupyterLab exited with {proc.returncode}:\n{server.log_tail()}")
+        try:
+            with urllib.request.urlopen(f"{server.url}/api/status?token={token}",
+                                        timeout=2) as r:
+                json.load(r)
+                return server
+        except (urllib.error.URLError, OSError, ValueError) as exc:
+            last = str(exc)
+        time.sleep(0.25)
+    server.stop()
+    raise RuntimeError(f"JupyterLab did not answer /api/status within {LAB_START_S:.0f} s "
+                       f"({last}):\n{server.log_tail()}")
+
+
+@dataclass
+class Offline:
+    """Route handler: let local requests through, abort and note every other one."""
+
+    allow_file: bool = False
+    aborted: list[str] = field(default_factory=list)
+
+    def allowed(self, url: str) -> bool:
+        parts = urlsplit(url)
+        scheme = parts.scheme.lower()
+        if scheme in ("data", "blob", "about"):
+            return True
+        if scheme == "file":
+            return self.allow_file
+        if scheme in ("http", "https", "ws", "wss"):
+            return not self.allow_file and parts.hostname in LOCAL_HOSTS
+        return False
+
+    def __call__(self, route) -> None:
+        url = route.request.url
+        if self.allowed(url):
+            route.continue_()
+        else:
+            self.aborted.append(url)
+            route.abort("blockedbyclient")
+
+
+#: JavaScript: every canvas inside the element (piercing open shadow roots), with its size.
+CANVASES_JS = """(el) => {
+  const found = [];
+  const walk = (node) => {
+    if (!node) return;
+    if (node.tagName === 'CANVAS') {
+      const r = node.getBoundingClientRect();
+      found.push({w: node.width, h: node.height, cw: r.width, ch: r.height});
+    }
+    if (node.shadowRoot) walk(node.shadowRoot);
+    for (const c of node.children || []) walk(c);
+  };
+  walk(el);
+  return found;
+}"""
+
+#: JavaScript: the data of the newest ColumnDataSource holding a column ``col``, in any Bokeh
+#: document of the page, with the number of documents (null when there is none).
+SOURCE_DATA_JS = """(col) => {
+  const B = window.Bokeh;
+  if (!B || !B.documents) return null;
+  const plain = (v) => (v && typeof v.length === 'number' && typeof v !== 'string')
+      ? Array.from(v, plain) : v;
+  for (let i = B.documents.length - 1; i >= 0; i--) {
+    const doc = B.documents[i];
+    const models = doc.all_models ? Array.from(doc.all_models)
+        : Array.from(doc._all_models.values());
+    for (const m of models) {
+      if (m.constructor.__name__ !== 'ColumnDataSource' && m.type !== 'ColumnDataSource')
+        continue;
+      const d = m.data instanceof Map ? Object.fromEntries(m.data) : m.data;
+      if (d && col in d) {
+        const out = {};
+        for (const k of Object.keys(d).sort()) out[k] = plain(d[k]);
+        return {ndocs: B.documents.length, index: i, data: out};
+      }
+    }
+  }
+  return {ndocs: B.documents.length, index: -1, data: null};
+}"""
+
+
+def wait_until(predicate, timeout_s: float, what: str, interval_s: float = 0.25):
+    """Poll ``predicate`` until it returns something truthy; fail naming ``what``."""
+    deadline = time.monotonic() + timeout_s
+    last = None
+    while time.monotonic() < deadline:
+        last = predicate()
+        if last:
+            return last
+        time.sleep(interval_s)
+    raise AssertionError(f"timed out after {timeout_s:.0f} s waiting for {what} (last: {last!r})")

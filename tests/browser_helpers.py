@@ -103,6 +103,11 @@ def start_lab(tmp: Path) -> LabServer:
     })
     for d in ("runtime", "config", "data", "ipython"):
         (home / d).mkdir(parents=True, exist_ok=True)
+    # no news and no update check (both would reach the internet), no toast asking about them
+    settings = Path(env["JUPYTERLAB_SETTINGS_DIR"]) / "@jupyterlab" / "apputils-extension"
+    settings.mkdir(parents=True)
+    (settings / "notification.jupyterlab-settings").write_text(
+        json.dumps({"fetchNews": "false", "checkForUpdates": False}))
     port = free_port()
     token = secrets.token_hex(24)
     cmd = [

@@ -283,7 +283,7 @@ def _least_effort(prob: _Problem, veh: Vehicle, sense: int, starts) -> tuple | N
             sol = minimize(lambda v: float(v[3:] @ v[3:]), v0,
                            jac=lambda v: np.r_[0.0, 0.0, 0.0, 2 * v[3:]],
                            bounds=bounds, constraints=cons, method="SLSQP",
-                           options={"maxiter": 300, "ftol": 1e-13})
+                           options={"maxiter": 100, "ftol": 1e-12})
         v = sol.x
         if not np.all(np.isfinite(v)):
             continue
@@ -362,7 +362,7 @@ def _starts(veh: Vehicle, prob: _Problem) -> list:
     c = pos[prob.idx].mean(axis=0)
     if np.linalg.norm(c) > 1e-9:
         d = c / np.linalg.norm(c)
-        for a in (tilt, 0.6):
+        for a in (tilt,):
             for sgn in (1.0, -1.0):
                 nx, ny = sgn * math.sin(a) * d[0], sgn * math.sin(a) * d[1]
                 starts.append((w, np.array([nx, ny, math.sqrt(1 - nx * nx - ny * ny)])))

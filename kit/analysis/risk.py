@@ -72,6 +72,8 @@ class SaturationRisk:
             "lower_margin_n": self.lower_margin_n.tolist(),
             "crossing_rate_per_s": float(self.crossing_rate_per_s),
             "probability_per_s": float(self.probability_per_s),
+            "psd_n2_m2_s": float(self.psd_n2_m2_s),
+            "time_constant_s": float(self.time_constant_s),
         }
 
     def _repr_html_(self) -> str:

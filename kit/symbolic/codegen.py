@@ -194,6 +194,8 @@ def _arg(a, size, name):
         raise ValueError(
             f"{name}: expected shape (..., {size}), got {a.shape}"
         )
+    if a.ndim == 1:
+        return a  # one point: a[k] is already the k-th component (the common, hot case)
     return numpy.ascontiguousarray(numpy.moveaxis(a, -1, 0))
 
 

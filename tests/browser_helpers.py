@@ -126,7 +126,7 @@ def start_lab(tmp: Path) -> LabServer:
     if hasattr(os, "geteuid") and os.geteuid() == 0:
         cmd.append("--allow-root")  # CI and `make test` run as root
     log_path = tmp / "lab.log"
-    log = open(log_path, "wb")  # noqa: SIM115 - closed when the process ends
+    log = open(log_path, "wb")  # the child keeps its own copy of the descriptor
     proc = subprocess.Popen(cmd, cwd=root, env=env, stdout=log, stderr=subprocess.STDOUT,
                             start_new_session=True)
     log.close()

@@ -14,7 +14,6 @@ import time
 from pathlib import Path
 
 import pytest
-
 from browser_helpers import (
     ARTIFACTS,
     CANVASES_JS,
@@ -161,7 +160,9 @@ def test_rotor_out_live_in_lab(lab, browser):
         page.screenshot(path=str(ARTIFACTS / "rotor_out_lab.png"))
         print(f"\nlab: open {t_open:.1f} s, run all {t_run:.1f} s, interact {t_interact:.1f} s;"
               f" readout {r0} -> {readout.inner_text()}; thrust {mid['data']['thrust']} -> "
-              f"{after['data']['thrust']}; {len(canvases)} canvases; sockets {sockets}")
+              f"{after['data']['thrust']}; {len(canvases)} canvases; Bokeh documents "
+              f"{before['ndocs']} -> {after['ndocs']}; sockets {sockets}; "
+              f"console errors {console_errors}")
     finally:
         context.close()
     assert not offline.aborted, f"the page tried to reach other hosts: {offline.aborted}"

@@ -167,13 +167,16 @@ spin = spin_section(veh, [c.eq for c in cases])
 spin
 """),
         md("## Nonlinear check of the first failure case\nHover under the hover LQR; the rotors "
-           "fail at 0.5 s; after a detection delay of 0.05 s the relaxed-hover LQR takes over."),
+           "fail at 0.5 s; after a detection delay of 0.05 s the relaxed-hover LQR takes over. "
+           "The yaw spin-up takes several seconds (time constant J_zz / gamma_z), so the run "
+           "lasts 12 s. Height and position are not controlled in this model: the vehicle "
+           "sinks and drifts, which the summary reports."),
         code("""
 from kit.analysis.simulate import simulate_failure
 
 first = opened.design.failure_cases[0] if opened.design.failure_cases else None
 if first is not None:
-    sim = simulate_failure(veh, first.failed, thrust_ratio=first.ratio_dict(), t_end=4.0)
+    sim = simulate_failure(veh, first.failed, thrust_ratio=first.ratio_dict(), t_end=12.0)
     display(sim)
 """),
         md("## Explore"),

@@ -173,11 +173,18 @@ def controllability(A, B) -> tuple[int, float]:
         return float(np.linalg.svd(M, compute_uv=False)[-1])
 
     best = math.inf
-    for lam in np.linalg.eigvals(A):
-        z0 = np.array([lam.real, lam.imag])
+    # sigma_min([A - lam I, B]) is the same at lam and conj(lam) for real A, B: search from the
+    # eigenvalues in the upper half-plane only
+    eigs = np.linalg.eigvals(A)
+    starts = []
+    for lam in eigs[eigs.imag >= -1e-12 * norm]:
+        if all(abs(lam - s) > 1e-9 * norm for s in starts):
+            starts.append(lam)
+    for lam in starts:
+        z0 = np.array([lam.real, abs(lam.imag)])
         res = minimize(smin, z0, method="Nelder-Mead",
-                       options={"xatol": 1e-10 * max(1.0, norm), "fatol": 1e-14 * norm,
-                                "maxiter": 400})
+                       options={"xatol": 1e-8 * max(1.0, norm), "fatol": 1e-12 * norm,
+                                "maxiter": 200})
         best = min(best, smin(z0), float(res.fun))
     return rank, best / norm
 

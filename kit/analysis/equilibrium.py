@@ -394,9 +394,16 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None) 
     if prob.k == 0:
         return _make(veh, failed, thrust_ratio, False, "every rotor has failed")
     cands = []
-    # a hint (continuation along a sweep) is tried alone first; the full set of starts after
-    for starts in ([[hint]] if hint is not None else []) + [_starts(veh, prob)]:
-        for sense in (1, -1):
+    # A hint (continuation along a sweep) is tried alone first, in the hint's spin sense only
+    # (both when it does not spin); the full search, both senses, runs when it fails.
+    searches = []
+    if hint is not None:
+        w_hint = float(hint[0])
+        senses = (1, -1) if w_hint == 0.0 else (1 if w_hint > 0 else -1,)
+        searches.append(([hint], senses))
+    searches.append((_starts(veh, prob), (1, -1)))
+    for starts, senses in searches:
+        for sense in senses:
             if thrust_ratio:
                 best = _fixed_ratio(prob, veh, thrust_ratio, sense, starts)
             else:

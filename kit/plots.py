@@ -397,7 +397,7 @@ def extent_of(mp) -> float:
 
 def thrust_figure(names, title: str = "Thrust per rotor against its limit"):
     """Bars of thrust per rotor, the limit as a black tick, a threshold as an orange tick."""
-    p = new_figure(title, "rotor", "thrust (N)", width=380, height=300,
+    p = new_figure(title, "rotor", "thrust (N)", width=340, height=330,
                    x_range=list(names))
     s = {"bars": _source(name=[], thrust=[], colour=[], limit=[], threshold=[], label=[])}
     p.vbar(x="name", top="thrust", width=0.6, source=s["bars"], fill_color="colour",
@@ -408,6 +408,9 @@ def thrust_figure(names, title: str = "Thrust per rotor against its limit"):
               line_color=COLOURS["threshold"], legend_label="review threshold")
     p.y_range.start = 0
     _legend_style(p, "top_left")
+    # below the plot, so that it never hides a bar
+    p.legend.orientation = "horizontal"
+    p.add_layout(p.legend[0], "below")
     return p, s
 
 
@@ -459,7 +462,7 @@ def poles_figure():
     from bokeh.models import Span
 
     p = new_figure("Poles of the reduced model", "real part (1/s)", "imaginary part (1/s)",
-                   width=340, height=300)
+                   width=300, height=300)
     s = {"closed": _source(re=[], im=[]), "open": _source(re=[], im=[])}
     p.add_layout(Span(location=0, dimension="height", line_color="#888888", line_width=1))
     p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
@@ -485,9 +488,11 @@ def poles_data(closed_loop, open_loop) -> dict[str, dict]:
 
 
 def circle_figure():
-    """The centre of mass's circle in the world's horizontal plane, in m."""
-    p = new_figure("Path of the centre of mass (world, from above)", "east (m)", "north (m)",
-                   width=300, height=300, match_aspect=True)
+    """The centre of mass's circle in the world's horizontal plane, in mm."""
+    p = new_figure("Centre-of-mass path (from above)", "east (mm)", "north (mm)",
+                   width=270, height=300, match_aspect=True)
+    p.xaxis.ticker.desired_num_ticks = 4
+    p.yaxis.ticker.desired_num_ticks = 4
     s = {"path": _source(x=[], y=[]), "centre": _source(x=[], y=[])}
     p.line(x="x", y="y", source=s["path"], line_color=COLOURS["closed_loop"], line_width=2,
            legend_label="equilibrium circle")
@@ -498,11 +503,12 @@ def circle_figure():
 
 
 def circle_data(radius_m: float, n: int = 121) -> dict[str, dict]:
-    """A circle of the given radius about the origin (empty when there is none)."""
+    """A circle of the given radius (m) about the origin, in mm (empty when there is none)."""
     if radius_m is None or not math.isfinite(radius_m):
         return {"path": {"x": [], "y": []}, "centre": {"x": [], "y": []}}
     a = np.linspace(0.0, 2 * math.pi, n)
-    return {"path": {"x": rounded(radius_m * np.cos(a)), "y": rounded(radius_m * np.sin(a))},
+    r_mm = 1e3 * radius_m
+    return {"path": {"x": rounded(r_mm * np.cos(a)), "y": rounded(r_mm * np.sin(a))},
             "centre": {"x": [0.0], "y": [0.0]}}
 
 

@@ -72,12 +72,21 @@ def open_design(path) -> Opened:
 
 
 class Equations:
-    """Derived equations of a structure, shown as LaTeX (one display per equation)."""
+    """Derived equations of a structure, one display formula per equation (Markdown + LaTeX).
+
+    The element-by-element entries of A and B (long expansions, checked by the derivation
+    tests and snapshots) are left out; the reduced model's matrices are shown numerically at
+    each equilibrium instead.
+    """
+
+    #: Labels left out of the display (prefixes).
+    SKIP = ("A[", "B[", "reduced p_dot", "reduced q_dot")
 
     def __init__(self, structure) -> None:
         from kit.symbolic.display import equations_text
 
         self.structure = structure
+        self.notes: list[str] = []
         self.rows: list[tuple[str, str]] = []
         label = ""
         for line in equations_text(structure, latex=True).splitlines():
@@ -86,16 +95,26 @@ class Equations:
             if line.startswith("%"):
                 label = line.lstrip("% ").strip()
             elif line.strip():
-                self.rows.append((label, line.strip()))
+                if not label:
+                    self.notes.append(line.strip())
+                elif not label.startswith(self.SKIP):
+                    self.rows.append((label, line.strip()))
                 label = ""
 
     def __repr__(self) -> str:
         return f"<equations of structure {self.structure.key}>"
 
-    def _repr_latex_(self) -> str:
-        body = r" \\ ".join((rf"\text{{{label}:}}\quad & " if label else "& ") + tex
-                             for label, tex in self.rows)
-        return r"$$\begin{aligned}" + body + r"\end{aligned}$$"
+    def _repr_markdown_(self) -> str:
+        parts = [f"Structure `{self.structure.key}`: {self.structure.n_rotors} rotors, "
+                 f"{'a wheel' if self.structure.wheel else 'no wheel'}, "
+                 f"{self.structure.drag_law} drag torque.", ""]
+        for note in self.notes:
+            parts += [f"$$ {note} $$", ""]
+        for label, tex in self.rows:
+            parts += ["", f"*{label}*", "", f"$$ {tex} $$"]
+        parts += ["", "The reduced model's A and B are these right-hand sides differentiated "
+                  "symbolically and evaluated at each equilibrium (tables below)."]
+        return "\n".join(parts)
 
 
 class Checks:

@@ -258,11 +258,6 @@ HIDDEN_EQUATIONS_JS = """() => {
 }"""
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "product: wb.Equations is one MathML <mtable>; Chromium (MathML Core) ignores "
-    "columnalign, so cells are centred in a column as wide as the longest equation and most "
-    "equations start outside the 872 px box (.rb-math scrolls sideways). Fix in "
-    "kit/record: CSS mtd[columnalign=left]{text-align:left} or one <math> per equation."))
 def test_record_equations_visible_without_scrolling(browser, record):
     _result, html_path, _t = record
     context, page, offline, requested = _open_offline(browser, html_path)

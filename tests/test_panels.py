@@ -99,8 +99,9 @@ def test_failure_panel_follows_analyse_case(survey):
     np.testing.assert_allclose(sorted(p.sources["poles"]["closed"].data["re"]),
                                sorted(c.ctl.closed_loop_poles.real), rtol=1e-4)
     assert plots.fmt(c.eq.spin_rate_rad_s, 3, "rad/s") in p.readout_html
-    assert p.sources["circle"]["path"].data["x"][0] == pytest.approx(c.eq.circle_radius_m,
-                                                                      rel=1e-5)
+    # the circle is drawn in mm
+    assert p.sources["circle"]["path"].data["x"][0] == pytest.approx(
+        1e3 * c.eq.circle_radius_m, rel=1e-5)
     # another failure set
     p.failed.value = ("front_left", "rear_right")
     c2 = analyse_case(veh, ("front_left", "rear_right"))

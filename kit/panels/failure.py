@@ -299,7 +299,7 @@ class FailurePanel(Panel):
         eq, ctl, risk = c.eq, c.ctl, c.risk
         if eq.found:
             rows = [
-                ("free directions (k \u2212 1)", str(eq.free_directions)),
+                ("free directions", str(eq.free_directions)),
                 ("spin rate about world up", f"{plots.fmt(eq.spin_rate_rad_s, 3, 'rad/s')} "
                  f"({plots.fmt(eq.spin_rate_rad_s / (2 * math.pi), 3, 'Hz')})"),
                 ("tilt of the spin axis from body z", plots.fmt(eq.tilt_deg, 3, "deg")),

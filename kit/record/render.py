@@ -233,7 +233,9 @@ def format_checks(raw) -> list[dict]:
             continue
         rows.append({
             "name": _fmt(c.get("name", "")), "case": _fmt(c.get("case")),
-            "value": _fmt(c.get("value")), "limit": _fmt(c.get("limit")),
+            "value": _fmt(c.get("value")),
+            "limit": (_fmt(c.get("relation")) + " " if c.get("relation") else "")
+            + _fmt(c.get("limit")),
             "unit": _fmt(c.get("unit")), "passed": c.get("passed") is True,
         })
     return rows
@@ -247,7 +249,8 @@ def collect_checks(nb) -> list[dict]:
             data = out.get("data", {})
             if CHECKS_MIME in data:
                 rows += format_checks(data[CHECKS_MIME])
-    return rows
+    # failed checks first (a reviewer reads those first), otherwise in workbook order
+    return sorted(rows, key=lambda c: c["passed"])
 
 
 def _is_bokeh(data: dict) -> bool:

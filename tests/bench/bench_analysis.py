@@ -39,7 +39,7 @@ def hexacopter_cases() -> None:
     wheel = Wheel(inertia_kg_m2=0.01, max_speed_rad_s=600.0, mass_kg=0.8,
                   position_m=(0.0, 0.0, 0.05))
     wveh = Vehicle.from_design(dataclasses.replace(design, wheel=wheel))
-    wveh.model
+    _ = wveh.model  # derive or load the generated module before timing
     grid = momentum_grid(wheel.max_momentum_n_m_s, per_side=10)[1:]  # 20 values, -h..h
     t0 = time.perf_counter()
     for failed, ratio in cases:
@@ -61,7 +61,7 @@ def rotor_count() -> None:
         veh = Vehicle.from_design(ring_design(n_rotors=n, mass_kg=0.3 * n, max_thrust_n=3.5,
                                               inertia_kg_m2=(1e-3 * n, 1e-3 * n, 1.8e-3 * n),
                                               rotor_inertia_kg_m2=3e-6))
-        veh.model
+        _ = veh.model
         names = veh.names
         analyse_case(veh, (names[0],))
         t0 = time.perf_counter()

@@ -269,10 +269,12 @@ def embed_html(model, doc_json: dict | None = None) -> str:
         f"const docs_json = {_js_json(docs_json)};\n"
         f"const render_items = {_js_json(items)};\n"
         f"{loader_js()}\n"
+        f"{_TEARDOWN_JS}\n"
+        f"function embed_once() {{ rbEmbed({json.dumps(elid)}, docs_json, render_items); }}\n"
         "let tries = 0;\n"
         "(function wait() {\n"
         "  if (window.Bokeh !== undefined && window.Bokeh.embed !== undefined) {\n"
-        "    window.Bokeh.embed.embed_items(docs_json, render_items); return; }\n"
+        "    embed_once(); return; }\n"
         "  if (++tries > 300) {\n"
         f"    const el = document.getElementById({json.dumps(elid)});\n"
         f"    if (el) {{ el.textContent = {json.dumps(missing)}; el.style.display = 'block'; }}\n"
@@ -280,6 +282,41 @@ def embed_html(model, doc_json: dict | None = None) -> str:
         "  setTimeout(wait, 50);\n"
         "})();\n})();\n</script>"
     )
+
+
+#: Page-side bookkeeping: a panel redraw replaces its figures' elements, so before embedding,
+#: the documents and views of figures whose element has left the page are torn down (BokehJS
+#: keeps every embedded document in ``Bokeh.documents`` otherwise). Guarded: a BokehJS without
+#: these members just skips the clean-up.
+_TEARDOWN_JS = """\
+function rbEmbed(elid, docs_json, render_items) {
+  const B = window.Bokeh;
+  const reg = (window.__rotorbookFigures = window.__rotorbookFigures || {});
+  for (const id of Object.keys(reg)) {
+    if (document.getElementById(id)) continue;
+    const rec = reg[id];
+    try {
+      for (const vm of rec.views || []) {
+        const roots = vm && vm.roots ? Array.from(vm.roots) : [];
+        for (const v of roots) { if (v && typeof v.remove === "function") v.remove(); }
+      }
+    } catch (e) { /* older BokehJS: leave the views */ }
+    try {
+      const i = B.documents.indexOf(rec.doc);
+      if (i >= 0) B.documents.splice(i, 1);
+    } catch (e) { /* no documents list */ }
+    delete reg[id];
+  }
+  const rootId = render_items[0].root_ids[0];
+  Promise.resolve(B.embed.embed_items(docs_json, render_items)).then((views) => {
+    let doc;
+    try {
+      doc = B.documents.find((d) => d.get_model_by_id && d.get_model_by_id(rootId));
+    } catch (e) { doc = undefined; }
+    reg[elid] = {doc: doc, views: Array.isArray(views) ? views : [views]};
+    window.__rotorbookEmbeds = (window.__rotorbookEmbeds || 0) + 1;  // redraw counter
+  });
+}"""
 
 
 def in_document(model):

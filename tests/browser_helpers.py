@@ -193,7 +193,8 @@ CANVASES_JS = """(el) => {
 }"""
 
 #: JavaScript: the data of the newest ColumnDataSource holding a column ``col``, in any Bokeh
-#: document of the page, with the number of documents (null when there is none).
+#: document of the page, with the number of documents and of figure embeds so far (a redraw
+#: counter kept by kit.plots; null when there is no BokehJS).
 SOURCE_DATA_JS = """(col) => {
   const B = window.Bokeh;
   if (!B || !B.documents) return null;
@@ -210,11 +211,13 @@ SOURCE_DATA_JS = """(col) => {
       if (d && col in d) {
         const out = {};
         for (const k of Object.keys(d).sort()) out[k] = plain(d[k]);
-        return {ndocs: B.documents.length, index: i, data: out};
+        return {ndocs: B.documents.length, embeds: window.__rotorbookEmbeds || 0, index: i,
+                data: out};
       }
     }
   }
-  return {ndocs: B.documents.length, index: -1, data: null};
+  return {ndocs: B.documents.length, embeds: window.__rotorbookEmbeds || 0, index: -1,
+          data: null};
 }"""
 
 

@@ -131,7 +131,7 @@ def test_rotor_out_live_in_lab(lab, browser):
         handle = panel.locator(".widget-slider:not(.mod-disabled)").filter(
             has_text=re.compile(r"^front_right")).locator(".noUi-handle")
         handle.wait_for(timeout=UPDATE_S * 1000)
-        wait_until(lambda: _thrust_data(page)["ndocs"] > before["ndocs"], UPDATE_S,
+        wait_until(lambda: _thrust_data(page)["embeds"] > before["embeds"], UPDATE_S,
                    "the panel to redraw after switching to thrust ratios")
         mid_text = _relaxed_hover_text(panel)
         mid = _thrust_data(page)
@@ -143,13 +143,16 @@ def test_rotor_out_live_in_lab(lab, browser):
         page.keyboard.press("ArrowLeft" if r0.strip() == "1.00" else "ArrowRight")
         wait_until(lambda: readout.inner_text() != r0, UPDATE_S,
                    f"the front_right slider readout to move from {r0}")
-        after = wait_until(lambda: (d := _thrust_data(page))["ndocs"] > mid["ndocs"] and d,
+        after = wait_until(lambda: (d := _thrust_data(page))["embeds"] > mid["embeds"] and d,
                            UPDATE_S, "the panel to redraw after the slider moved")
         after_text = wait_until(lambda: (t := _relaxed_hover_text(panel)) != mid_text and t,
                                 UPDATE_S, "the relaxed-hover readout to change")
         assert after["data"]["thrust"] != mid["data"]["thrust"], (
             f"thrust bars did not change: {mid['data']['thrust']} -> {after['data']['thrust']}")
         assert after_text != before_text
+        # redraws replace the panel's figure: BokehJS must not keep the old documents
+        assert after["ndocs"] <= before["ndocs"], (
+            f"Bokeh documents piled up: {before['ndocs']} -> {after['ndocs']}")
         canvases = [c for c in panel.evaluate(CANVASES_JS) if c["cw"] > 0 and c["ch"] > 0]
         assert len(canvases) >= 5, f"figures did not redraw after the change: {canvases}"
         t_interact = time.monotonic() - t0 - t_open - t_run

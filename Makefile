@@ -35,8 +35,9 @@ demo: $(STAMP)
 	@for f in $(DEMO_DESIGNS); do echo "  $(CURDIR)/records/$$(basename $$f .toml)/index.html"; done
 
 lint: $(STAMP)
-	$(PY) -m ruff check kit tests
+	$(PY) -m ruff check kit tests workbooks
 	$(PY) -W error -m compileall -q kit
+	$(PY) -m mypy --ignore-missing-imports kit/numeric kit/symbolic/structure.py kit/symbolic/cache.py
 
 ## make test: lint, unit/property/derivation tests, workbooks under nbval, browser tests
 test: $(STAMP) chromium lint

@@ -74,3 +74,15 @@ def test_cli_analyze_subprocess_readable_summary():
                        capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr
     assert "cases:" in r.stdout and "checks:" in r.stdout
+
+
+def test_cli_equations_plain_and_latex(capsys):
+    # the wheel quad: 4 rotors and a wheel; sums over rotors, not expanded copies
+    wheel = next(p for p in DESIGNS if p.stem == "wheel_quad")
+    assert cli.main(["equations", str(wheel)]) == 0
+    plain_text = capsys.readouterr().out
+    assert "n4-wheel-linear" in plain_text
+    assert cli.main(["equations", str(wheel), "--latex"]) == 0
+    tex = capsys.readouterr().out
+    assert r"\sum" in tex and "h_{w}" in tex
+    assert "{f}_{3}" not in tex  # rotors are summed, not written out one by one

@@ -70,7 +70,7 @@ veh = Vehicle.from_design(opened.design, opened.mp)
 panels.setup()
 """
 
-CLOSE = [md("## Cautions"), code("wb.Cautions()")]
+CLOSE = [code("wb.Cautions()")]
 
 
 def hover_nb():

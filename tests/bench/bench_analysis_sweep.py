@@ -34,8 +34,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__)
     ap.add_argument("--n", type=int, default=50, help="grid points per side (default 50)")
     ap.add_argument("--span-m", type=float, default=0.04, help="offset range +- (m)")
-    ap.add_argument("--single-rows", type=int, default=None,
-                    help="rows for the one-worker run (default: all)")
+    ap.add_argument("--single-rows", type=int, default=10,
+                    help="rows for the one-worker run (default: 10; the ratio is per point)")
     a = ap.parse_args()
     d = design.load(DESIGN)
     xs = ys = np.linspace(-a.span_m, a.span_m, a.n)

@@ -64,6 +64,8 @@ def check_summary(d, mp) -> str:
 
 def _check_one(path: str) -> tuple[dict, str | None]:
     """Check one design file: its ``--json`` object and, when valid, its text summary."""
+    from kit import massprops
+
     try:
         d, mp, warns = _load_with_warnings(path)
     except DesignError as exc:
@@ -73,11 +75,7 @@ def _check_one(path: str) -> tuple[dict, str | None]:
         "file": path,
         "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
         "mass_properties": mp.to_dict(),
-        "rotors": [
-            {"name": r.name, "position_m": [float(x) for x in pos],
-             "spin": "ccw" if r.spin > 0 else "cw"}
-            for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True)
-        ],
+        "rotors": massprops.rotor_table(d, mp),
         "errors": [],
         "warnings": warns,
     }

@@ -289,6 +289,15 @@ def compute(design: Design) -> MassProperties:
     )
 
 
+def rotor_table(design: Design, mp: MassProperties) -> list[dict]:
+    """Rotors as plain JSON: name, hub position about the CoM (m), spin ("ccw" or "cw")."""
+    return [
+        {"name": r.name, "position_m": [float(x) for x in pos],
+         "spin": "ccw" if r.spin > 0 else "cw"}
+        for r, pos in zip(design.rotors, mp.rotor_positions_m, strict=True)
+    ]
+
+
 def tilt_deg(axis: np.ndarray) -> float:
     """Angle between a unit vector and body z, in degrees (for tables)."""
     return math.degrees(math.acos(max(-1.0, min(1.0, abs(float(axis[2]))))))

@@ -308,7 +308,7 @@ function rbEmbed(elid, docs_json, render_items) {
     delete reg[id];
   }
   const rootId = render_items[0].root_ids[0];
-  Promise.resolve(B.embed.embed_items(docs_json, render_items)).then((views) => {
+  Promise.resolve(window.Bokeh.embed.embed_items(docs_json, render_items)).then((views) => {
     let doc;
     try {
       doc = B.documents.find((d) => d.get_model_by_id && d.get_model_by_id(rootId));

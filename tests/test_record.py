@@ -13,11 +13,11 @@ import pytest
 
 from kit.cli import main as cli_main
 from kit.errors import DesignError, RecordError
+from kit.fileio import write_atomic as atomic_write
 from kit.record import execute as ex
 from kit.record.latex import latex_output_to_html, protect_math, restore_math, tex_to_mathml
 from kit.record.offline import external_references
 from kit.record.render import (
-    atomic_write,
     list_workbooks,
     new_folder,
     record_design,

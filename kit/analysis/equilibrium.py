@@ -212,32 +212,7 @@ def _spin_guess(veh: Vehicle, prob: _Problem) -> float:
 
 def _polish(prob: _Problem, v: np.ndarray) -> tuple[np.ndarray, float]:
     """Newton steps on the square system with the thrust ratios of ``v`` fixed."""
-    ratio = v[3:].copy()
-    t = 1.0
-    u = np.array([v[0], v[1], v[2], t])
-
-    def build(u):
-        return np.r_[u[0], u[1], u[2], ratio * u[3]]
-
-    best = (v, float(np.max(np.abs(prob.residual(v)))))
-    for _ in range(8):
-        vv = build(u)
-        r = prob.residual(vv)
-        res = float(np.max(np.abs(r)))
-        if res < best[1]:
-            best = (vv, res)
-        if res < 1e-14:
-            break
-        Jv = prob.jacobian(vv)
-        Ju = np.column_stack([Jv[:, 0], Jv[:, 1], Jv[:, 2], Jv[:, 3:] @ ratio])
-        if not np.all(np.isfinite(Ju)):
-            break
-        try:
-            du = np.linalg.lstsq(Ju, -r, rcond=None)[0]
-        except np.linalg.LinAlgError:
-            break
-        u = u + du
-    return best
+    return _polish_ratio(prob, v, v[3:].copy())
 
 
 def _non_spinning(prob: _Problem, veh: Vehicle) -> tuple | None:

@@ -29,6 +29,7 @@ from kit.analysis.spin import (
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import WheelStudy, wheel_study
 from kit.design import Design, load
+from kit.massprops import rotor_table
 
 SCHEMA = "rotorbook.analysis/1"
 
@@ -162,11 +163,7 @@ class DesignReport:
             "kit_version": __version__,
             "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
             "mass_properties": mp.to_dict(),
-            "rotors": [
-                {"name": r.name, "position_m": [float(x) for x in pos],
-                 "spin": "ccw" if r.spin > 0 else "cw"}
-                for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True)
-            ],
+            "rotors": rotor_table(d, mp),
             "hover": self.hover.to_dict(),
             "cases": [c.to_dict() for c in self.cases],
             "spin_stability": self.spin.to_dict(),

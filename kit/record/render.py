@@ -19,10 +19,8 @@ import datetime as _dt
 import html
 import json
 import math
-import os
 import shutil
 import subprocess
-import tempfile
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,6 +29,7 @@ import nbformat
 
 import kit
 from kit.errors import RecordError
+from kit.fileio import write_atomic
 from kit.record import execute as _ex
 from kit.record.offline import external_references
 
@@ -157,31 +156,6 @@ def select_workbooks(names: Iterable[str] | None, available: dict[str, Path]) ->
 
 
 # -- writing --------------------------------------------------------------------------------------
-
-
-def atomic_write(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file in the same folder and os.replace."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.chmod(tmp, 0o666 & ~_umask())
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
 
 
 def git_commit(repo: Path | None = None) -> str:
@@ -533,14 +507,14 @@ def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str |
             page, checks = render_record(nb, design=d, workbook=name, date=date,
                                          failure=failure, commit=commit)
             nb_path, html_path = out / f"{name}.ipynb", out / f"{name}.html"
-            atomic_write(nb_path, nbformat.writes(nb) + "\n")
-            atomic_write(html_path, page)
+            write_atomic(nb_path, nbformat.writes(nb) + "\n")
+            write_atomic(html_path, page)
             records.append(WorkbookRecord(
                 name=name, html_path=html_path, notebook_path=nb_path, failure=failure,
                 checks_total=len(checks), checks_failed=sum(not c["passed"] for c in checks),
                 external=tuple(external_references(page))))
     index = out / "index.html"
-    atomic_write(index, render_index(out, d, date, records))
+    write_atomic(index, render_index(out, d, date, records))
     return RecordResult(design_name=d.name, out_dir=out, index_path=index, records=tuple(records))
 
 
@@ -588,5 +562,5 @@ def new_folder(dir: str | Path, design_path: str | Path,
     folder.mkdir(parents=True, exist_ok=True)
     shutil.copy2(src, folder / src.name)
     for name, nb in notebooks.items():
-        atomic_write(folder / f"{name}.ipynb", nbformat.writes(nb) + "\n")
+        write_atomic(folder / f"{name}.ipynb", nbformat.writes(nb) + "\n")
     return folder

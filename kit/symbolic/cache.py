@@ -21,13 +21,13 @@ import importlib.metadata
 import importlib.util
 import os
 import re
-import tempfile
 import warnings
 from functools import lru_cache
 from pathlib import Path
 from types import ModuleType
 
 from kit.errors import CacheWarning
+from kit.fileio import write_atomic
 
 from .structure import Structure
 
@@ -156,24 +156,6 @@ def load_cached(structure: Structure) -> ModuleType | None:
         stacklevel=3,
     )
     return None
-
-
-def write_atomic(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` atomically (temporary file in the same folder, then rename)."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=path.stem + ".", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
 
 
 def _module_name(path: Path) -> str:

@@ -12,7 +12,7 @@ import sys
 import warnings
 
 from kit import __version__
-from kit.errors import DesignError, DesignWarning, RecordError, RotorbookError
+from kit.errors import DesignError, DesignWarning, OptionError, RecordError, RotorbookError
 
 EXIT_OK = 0
 EXIT_FAILED = 1
@@ -121,12 +121,61 @@ def cmd_equations(args) -> int:
 def cmd_analyze(args) -> int:
     from kit.analysis.report import analyze_file
 
-    report = analyze_file(args.file, progress=not args.json)
+    report = analyze_file(args.file, progress=_progress("cases", not args.json))
     if args.json:
         json.dump(report.to_dict(), sys.stdout, indent=1)
         sys.stdout.write("\n")
     else:
         print(report.summary_text())
+    return EXIT_OK
+
+
+def _progress(label: str, enabled: bool):
+    """A text progress bar on stderr when it is a terminal (nothing in logs and pipes)."""
+    if not enabled or not sys.stderr.isatty():
+        return None
+    from kit.panels.progress import TextProgress
+
+    return TextProgress(label)
+
+
+def cmd_sweep(args) -> int:
+    import numpy as np
+
+    from kit.analysis.report import plain
+    from kit.analysis.sweep import placement_sweep
+    from kit.design import load
+
+    d = load(args.file)
+    names = [p.name for p in d.parts] + (["wheel"] if d.wheel is not None else [])
+    if args.part not in names:
+        raise OptionError(f"--part: {args.part!r} is not a part of {d.name!r}; choose one "
+                             "of: " + ", ".join(names))
+    unknown = [f for f in args.failed if f not in d.rotor_names]
+    if unknown:
+        raise OptionError(f"--failed: {', '.join(unknown)} -> rotor names: "
+                             + ", ".join(d.rotor_names))
+    if args.points < 2 or args.span_m <= 0:
+        raise OptionError("--points must be >= 2 and --span-m > 0 (offsets -span..+span m)")
+    offsets = np.linspace(-args.span_m, args.span_m, args.points)
+    pmap = placement_sweep(d, args.part, offsets, offsets, tuple(args.failed),
+                           progress=_progress(f"sweep {args.part}", not args.json))
+    if args.json:
+        json.dump(plain(pmap.to_dict()), sys.stdout)
+        sys.stdout.write("\n")
+        return EXIT_OK
+    print(f"{d.name}: '{args.part}' moved over {args.points} x {args.points} offsets, "
+          f"+-{args.span_m:g} m in x and y")
+    cases = [("no failure", pmap.hover)]
+    if pmap.failure is not None:
+        cases.append(("failed: " + ", ".join(pmap.failure.failed), pmap.failure))
+    for label, cm in cases:
+        s = cm.summary()
+        print(f"  {label}:")
+        for key, value in s.items():
+            if isinstance(value, list):
+                value = " .. ".join(f"{v:.4g}" for v in value)
+            print(f"    {key:<26} {value}")
     return EXIT_OK
 
 
@@ -172,6 +221,17 @@ def build_parser() -> argparse.ArgumentParser:
     a.add_argument("--json", action="store_true", help="JSON (schema rotorbook.analysis/1)")
     a.set_defaults(func=cmd_analyze)
 
+    s = sub.add_parser("sweep", help="move one part over a grid: equilibria, control, risk")
+    s.add_argument("file", metavar="FILE")
+    s.add_argument("--part", required=True, help="part name (or 'wheel')")
+    s.add_argument("--failed", nargs="*", default=[], metavar="ROTOR",
+                   help="failure set to map beside the no-failure case")
+    s.add_argument("--points", type=int, default=11, help="grid points per side (default 11)")
+    s.add_argument("--span-m", type=float, default=0.03,
+                   help="offsets from -span to +span in x and y, in m (default 0.03)")
+    s.add_argument("--json", action="store_true", help="the whole map as JSON")
+    s.set_defaults(func=cmd_sweep)
+
     r = sub.add_parser("record", help="execute the workbooks for a design into HTML records")
     r.add_argument("design", metavar="DESIGN")
     r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
@@ -203,7 +263,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.debug:
             raise
         print(f"rotorbook: {exc}", file=sys.stderr)
-        return EXIT_BAD_INPUT if isinstance(exc, RecordError) else EXIT_FAILED
+        return EXIT_BAD_INPUT if isinstance(exc, RecordError | OptionError) else EXIT_FAILED
     except BrokenPipeError:  # pragma: no cover - output piped into head and the like
         return EXIT_OK
     except KeyboardInterrupt:  # pragma: no cover

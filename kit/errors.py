@@ -25,6 +25,10 @@ class EquilibriumNotFound(RotorbookError):
     """No relaxed-hover equilibrium satisfies the equations within the thrust limits."""
 
 
+class OptionError(RotorbookError, ValueError):
+    """A command-line option names something the design does not have, or is out of range."""
+
+
 class RecordError(RotorbookError):
     """A calculation record could not be written (existing file, failed workbook, bad option)."""
 

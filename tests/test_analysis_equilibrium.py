@@ -127,3 +127,27 @@ def test_equilibrium_residual_property(mass, jz_over_jx, kappa):
         eq = E.solve(veh, failed)
         _invariants(veh, eq)
         assert math.isfinite(eq.spin_rate_rad_s)
+
+
+def test_plus_quad_two_opposite_out_quadratic_drag_closed_form():
+    # Derived exact relation with the quadratic drag law tau_z = -gamma2 |omega| omega_z:
+    # gamma2 w^2 = kappa m g, so |w| = sqrt(kappa m g / gamma2); thrusts m g / 2, n_bar = e_z.
+    m, kappa, g2 = 0.5, 0.012, 6e-5
+    veh = Vehicle.from_design(ring_design(mass_kg=m, torque_per_thrust_m=kappa,
+                                          drag=(3e-5, 3e-5, g2), drag_law="quadratic"))
+    eq = E.solve(veh, ("r1", "r3"))
+    _invariants(veh, eq)
+    np.testing.assert_allclose(eq.thrust_n[[0, 2]], m * G / 2, rtol=1e-9)
+    assert abs(eq.spin_rate_rad_s) == pytest.approx(math.sqrt(kappa * m * G / g2), rel=1e-9)
+
+
+def test_no_failure_case_is_the_non_spinning_hover_when_it_exists():
+    # An unbalanced vehicle (CoM off the rotor centroid, a product of inertia) with quadratic
+    # drag: the no-failure case is the non-spinning hover, not a slowly spinning member.
+    d = ring_design(inertia_kg_m2=[[2.5e-3, 0, 2e-4], [0, 2.5e-3, 0], [2e-4, 0, 4.5e-3]],
+                    drag=(3e-5, 3e-5, 6e-5), drag_law="quadratic")
+    veh = Vehicle.from_design(d)
+    eq = E.solve(veh, ())
+    _invariants(veh, eq)
+    assert eq.spin_rate_rad_s == 0.0
+    np.testing.assert_allclose(eq.n_bar, [0.0, 0.0, 1.0], atol=1e-15)

@@ -86,3 +86,18 @@ def test_cli_equations_plain_and_latex(capsys):
     tex = capsys.readouterr().out
     assert r"\sum" in tex and "h_{w}" in tex
     assert "{f}_{3}" not in tex  # rotors are summed, not written out one by one
+
+
+def test_cli_sweep_summary_json_and_bad_options(capsys):
+    survey = str(next(p for p in DESIGNS if p.stem == "survey_quad"))
+    assert cli.main(["sweep", survey, "--part", "battery", "--points", "3",
+                     "--span-m", "0.01", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["part"] == "battery" and len(data["x_offsets_m"]) == 3
+    assert data["hover"]["found"] == [[True] * 3] * 3
+    # a part that does not exist, an unknown rotor, a bad grid: one line each, exit 2
+    for argv in (["--part", "batery"], ["--part", "battery", "--failed", "nose"],
+                 ["--part", "battery", "--points", "1"]):
+        assert cli.main(["sweep", survey, *argv]) == 2
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "Traceback" not in err

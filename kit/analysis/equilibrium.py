@@ -13,7 +13,9 @@ stationary (``n_dot = -omega x n = 0``) and the vehicle holds its height when
 
 Four equations in ``w, n_x, n_y`` and the ``k`` working thrusts leave ``k - 1`` free directions.
 The default member minimises ``sum f_i^2`` within ``0 <= f_i <= f_max,i`` (least effort); a
-failure case may fix the thrust ratios instead, which leaves a square system. Both spin senses
+failure case may fix the thrust ratios instead, which leaves a square system. With every rotor
+working, the non-spinning hover is taken whenever it exists within the limits (the vehicle
+holds yaw in normal flight); the least-effort search runs only when it does not. Both spin senses
 are searched (``w >= 0`` and ``w <= 0``). The residual is scaled: moments by ``m g l`` (``l``
 the largest hub distance), the force by ``m g``.
 
@@ -368,6 +370,14 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None) 
     prob = _Problem(veh, failed)
     if prob.k == 0:
         return _make(veh, failed, thrust_ratio, False, "every rotor has failed")
+    if not failed and not thrust_ratio:
+        # Every rotor working: the vehicle holds yaw, so the operating point is the
+        # non-spinning hover whenever one exists within the limits. (For an unbalanced vehicle a
+        # slowly spinning member can have a slightly smaller sum of squared thrusts; it is not
+        # the vehicle's nominal state.)
+        still = _non_spinning(prob, veh)
+        if still is not None:
+            return _make(veh, failed, thrust_ratio, True, "", prob.full_z(still[1]), still[2])
     cands = []
     # A hint (continuation along a sweep) is tried alone first, in the hint's spin sense only
     # (both when it does not spin); the full search, both senses, runs when it fails.

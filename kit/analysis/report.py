@@ -223,11 +223,28 @@ class DesignReport:
         return head + checks_html(self.checks) + t
 
 
-def analyze(design: Design, wheel: bool = True, executor=None) -> DesignReport:
-    """Run every analysis of a design (hover, all cases, spin stability, wheel study, checks)."""
+def analyze(design: Design, wheel: bool = True, executor=None, progress=None) -> DesignReport:
+    """Run every analysis of a design (hover, all cases, spin stability, wheel study, checks).
+
+    Parameters
+    ----------
+    design : Design
+    wheel : bool
+        Run the wheel study (for a design with a wheel).
+    executor : concurrent.futures.Executor or None
+        Runs the wheel study's cases in parallel when given.
+    progress : callable or None
+        ``progress(done, total)`` over the equilibrium cases.
+    """
     veh = Vehicle.from_design(design)
     hover = analyse_hover(veh)
-    cases = tuple(analyse_case(veh, f, r) for f, r in all_cases(veh))
+    todo = all_cases(veh)
+    results = []
+    for i, (f, r) in enumerate(todo):
+        results.append(analyse_case(veh, f, r))
+        if progress is not None:
+            progress(i + 1, len(todo))
+    cases = tuple(results)
     spin = spin_section(veh, [c.eq for c in cases])
     study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
     checks = list(checks_mod.hover_checks(hover, design.review))
@@ -238,6 +255,14 @@ def analyze(design: Design, wheel: bool = True, executor=None) -> DesignReport:
     return DesignReport(design, veh, hover, cases, spin, study, tuple(checks))
 
 
-def analyze_file(path: str | Path, progress: bool = False) -> DesignReport:
-    """Load a design file and analyse it (DesignError for an invalid file)."""
-    return analyze(load(path))
+def analyze_file(path: str | Path, progress=None) -> DesignReport:
+    """Load a design file and analyse it (DesignError for an invalid file).
+
+    Parameters
+    ----------
+    path : str or Path
+        The design file.
+    progress : callable or None
+        ``progress(done, total)`` over the equilibrium cases.
+    """
+    return analyze(load(path), progress=progress)

@@ -172,7 +172,7 @@ def controllability(A, B) -> tuple[int, float]:
         """sigma_min([A - lam I, B]) and its gradient in (Re lam, Im lam)."""
         lam = complex(z[0], z[1])
         M = np.hstack([A - lam * np.eye(n), B])
-        U, S, Vh = np.linalg.svd(M)
+        U, S, Vh = np.linalg.svd(M, full_matrices=False)
         u, v = U[:, -1], Vh[-1].conj()[:n]
         # d sigma = Re(u^H dM v) for a simple singular value; dM/d(Re lam) = [-I, 0],
         # dM/d(Im lam) = [-i I, 0]
@@ -189,8 +189,8 @@ def controllability(A, B) -> tuple[int, float]:
             starts.append(lam)
     for lam in starts:
         z0 = np.array([lam.real, abs(lam.imag)])
-        res = minimize(smin, z0, jac=True, method="BFGS", options={"gtol": 1e-12 * norm,
-                                                                   "maxiter": 100})
+        res = minimize(smin, z0, jac=True, method="BFGS", options={"gtol": 1e-9 * norm,
+                                                                   "maxiter": 40})
         best = min(best, smin(z0)[0], float(res.fun))
     return rank, best / norm
 

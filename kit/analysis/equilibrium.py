@@ -325,7 +325,9 @@ def _polish_ratio(prob: _Problem, v: np.ndarray, ratio: np.ndarray) -> tuple[np.
                 if rn < res:
                     break
             step *= 0.5
-        u = u + step * du
+        else:
+            break  # no step reduces the residual: converged to rounding, or stuck
+        u = un
     return best
 
 

@@ -272,7 +272,17 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
 
 
 def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Design:
-    """Validate a design given as TOML text; see :func:`load`."""
+    """Validate a design given as TOML text; see :func:`load`.
+
+    Parameters
+    ----------
+    text : str
+        TOML text of a design.
+    source : str
+        Name shown in error messages.
+    sha256 : str or None
+        Checksum to record (default: of ``text``).
+    """
     if sha256 is None:
         sha256 = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()
     try:
@@ -284,7 +294,17 @@ def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Des
 
 
 def from_dict(data: Any, source: str = "<dict>", sha256: str = "") -> Design:
-    """Validate a design given as the nested dict that TOML parsing produces."""
+    """Validate a design given as the nested dict that TOML parsing produces.
+
+    Parameters
+    ----------
+    data : dict
+        The parsed TOML document.
+    source : str
+        Name shown in error messages.
+    sha256 : str
+        Checksum to record.
+    """
     c = _Collector()
     if not isinstance(data, dict):
         raise DesignError([f"(top level): {_fmt(data)} -> a TOML document (a table)"], path=source)

@@ -154,7 +154,13 @@ def shape_inertia(part: Part) -> np.ndarray:
 
 def part_inertia(part: Part) -> np.ndarray:
     """Inertia of a part about its centre in design axes: :func:`shape_inertia` turned by
-    ``yaw_deg`` about z, ``R J R^T`` (rotation of a second-order tensor)."""
+    ``yaw_deg`` about z, ``R J R^T`` (rotation of a second-order tensor).
+
+    Parameters
+    ----------
+    part : Part
+        A validated part (mass in kg, lengths in m, yaw in degrees).
+    """
     J = shape_inertia(part)
     if part.yaw_deg:
         a = math.radians(part.yaw_deg)
@@ -166,6 +172,11 @@ def part_inertia(part: Part) -> np.ndarray:
 
 def combine(items: list[Item] | tuple[Item, ...]) -> tuple[float, np.ndarray, np.ndarray]:
     """Total mass, CoM and inertia about the CoM of mass elements (parallel-axis theorem).
+
+    Parameters
+    ----------
+    items : sequence of Item
+        Mass elements: mass in kg, centre in m, inertia about the centre in kg m^2.
 
     Returns
     -------
@@ -187,6 +198,11 @@ def principal(J: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     Each axis is signed so that its largest component is positive, then the third is flipped if
     needed to make det = +1, so the result is reproducible.
+
+    Parameters
+    ----------
+    J : ndarray (3, 3)
+        Symmetric inertia tensor, in kg m^2.
     """
     w, V = np.linalg.eigh(0.5 * (J + J.T))
     for k in range(3):
@@ -198,7 +214,13 @@ def principal(J: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def items_of(design: Design) -> list[Item]:
-    """Every mass element of the design: parts, rotor point masses, the wheel's mass."""
+    """Every mass element of the design: parts, rotor point masses, the wheel's mass.
+
+    Parameters
+    ----------
+    design : Design
+        A validated design.
+    """
     items = [
         Item(p.name, p.mass_kg, np.asarray(p.position_m, float), part_inertia(p))
         for p in design.parts
@@ -214,7 +236,13 @@ def items_of(design: Design) -> list[Item]:
 
 
 def spin_inertia(design: Design) -> np.ndarray:
-    """Spin-axis inertia of rotors and wheel about body z, as a 3x3 tensor, in kg m^2."""
+    """Spin-axis inertia of rotors and wheel about body z, as a 3x3 tensor, in kg m^2.
+
+    Parameters
+    ----------
+    design : Design
+        A validated design.
+    """
     total = sum(r.rotor_inertia_kg_m2 for r in design.rotors)
     if design.wheel is not None:
         total += design.wheel.inertia_kg_m2
@@ -290,7 +318,15 @@ def compute(design: Design) -> MassProperties:
 
 
 def rotor_table(design: Design, mp: MassProperties) -> list[dict]:
-    """Rotors as plain JSON: name, hub position about the CoM (m), spin ("ccw" or "cw")."""
+    """Rotors as plain JSON: name, hub position about the CoM (m), spin ("ccw" or "cw").
+
+    Parameters
+    ----------
+    design : Design
+        A validated design.
+    mp : MassProperties
+        Its mass properties (hubs about the CoM).
+    """
     return [
         {"name": r.name, "position_m": [float(x) for x in pos],
          "spin": "ccw" if r.spin > 0 else "cw"}
@@ -299,5 +335,11 @@ def rotor_table(design: Design, mp: MassProperties) -> list[dict]:
 
 
 def tilt_deg(axis: np.ndarray) -> float:
-    """Angle between a unit vector and body z, in degrees (for tables)."""
+    """Angle between a unit vector and body z, in degrees (for tables).
+
+    Parameters
+    ----------
+    axis : ndarray (3,)
+        A unit vector in body axes.
+    """
     return math.degrees(math.acos(max(-1.0, min(1.0, abs(float(axis[2]))))))

@@ -71,15 +71,23 @@ def _public_functions():
             yield f"{info.name}.{fname}", obj
 
 
+#: Layers whose public functions must document every parameter (numpydoc, with units).
+STRICT = ("kit.design", "kit.massprops", "kit.symbolic", "kit.numeric", "kit.analysis")
+
+
 def test_documented_parameters_are_complete():
-    # numpydoc: where a function has a Parameters section, every parameter is in it
+    # numpydoc: every public function documents its parameters; in the physics and input
+    # layers a function with parameters must have a Parameters section
     missing = []
     for qual, fn in _public_functions():
         doc = inspect.getdoc(fn) or ""
         if not doc:
             missing.append(f"{qual}: no docstring")
             continue
+        params = [p for p in inspect.signature(fn).parameters if p not in ("self", "cls")]
         if "Parameters\n----------" not in doc:
+            if params and qual.startswith(STRICT):
+                missing.append(f"{qual}: no Parameters section")
             continue
         section = doc.split("Parameters\n----------", 1)[1]
         section = re.split(r"\n\n[A-Z][a-z]+\n-{3,}", section, maxsplit=1)[0]

@@ -11,7 +11,15 @@ __all__ = ["DRAG_LAWS", "Structure", "equations_text"]
 
 
 def equations_text(structure: Structure, latex: bool = False) -> str:
-    """The equations of ``structure`` as plain text or LaTeX (see :mod:`kit.symbolic.display`)."""
+    """The equations of ``structure`` as plain text or LaTeX (see :mod:`kit.symbolic.display`).
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    latex : bool
+        LaTeX instead of plain text.
+    """
     from .display import equations_text as _equations_text
 
     return _equations_text(structure, latex=latex)

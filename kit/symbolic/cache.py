@@ -71,7 +71,13 @@ def source_hash() -> str:
 
 
 def cache_key(structure: Structure) -> str:
-    """The full cache key of ``structure``'s generated module (no sympy import)."""
+    """The full cache key of ``structure``'s generated module (no sympy import).
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    """
     sympy_version = importlib.metadata.version("sympy")
     return (
         f"{structure.key}|kit={_kit_version()}|sympy={sympy_version}|src={source_hash()}"
@@ -89,7 +95,13 @@ def cache_dir() -> Path:
 
 
 def cache_path(structure: Structure) -> Path:
-    """Path of the cached module of ``structure`` (the file may not exist yet)."""
+    """Path of the cached module of ``structure`` (the file may not exist yet).
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    """
     key = cache_key(structure)
     tag = hashlib.sha256(key.encode()).hexdigest()[:16]
     name = f"rotorbook_gen_{structure.key.replace('-', '_')}_{tag}.py"
@@ -97,12 +109,26 @@ def cache_path(structure: Structure) -> Path:
 
 
 def body_sha256(body: str) -> str:
-    """Checksum of a module body, as stored in its header."""
+    """Checksum of a module body, as stored in its header.
+
+    Parameters
+    ----------
+    body : str
+        The module text after the header marker.
+    """
     return hashlib.sha256(body.encode("utf-8")).hexdigest()
 
 
 def check_source(text: str, key: str) -> str | None:
-    """Return ``None`` when ``text`` is a valid module for ``key``, else the reason it is not."""
+    """Return ``None`` when ``text`` is a valid module for ``key``, else the reason it is not.
+
+    Parameters
+    ----------
+    text : str
+        The whole module source.
+    key : str
+        The cache key it must carry (:func:`cache_key`).
+    """
     head, sep, body = text.partition(BODY_MARKER)
     if not sep:
         return "no body marker"
@@ -117,7 +143,17 @@ def check_source(text: str, key: str) -> str | None:
 
 
 def module_from_source(text: str, name: str, path: Path | None = None) -> ModuleType:
-    """Execute generated module source ``text`` as a fresh module called ``name``."""
+    """Execute generated module source ``text`` as a fresh module called ``name``.
+
+    Parameters
+    ----------
+    text : str
+        Python source of a generated module.
+    name : str
+        Module name to give it.
+    path : Path or None
+        File it came from (for tracebacks).
+    """
     spec = importlib.util.spec_from_loader(name, loader=None, origin=str(path) if path else None)
     assert spec is not None
     module = importlib.util.module_from_spec(spec)
@@ -133,6 +169,11 @@ def load_cached(structure: Structure) -> ModuleType | None:
 
     A file that exists but fails verification (stale key, corrupt body, syntax error)
     emits :class:`~kit.errors.CacheWarning` and counts as a miss.
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
     """
     path = cache_path(structure)
     key = cache_key(structure)

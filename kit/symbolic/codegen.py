@@ -59,7 +59,13 @@ class _Printer(NumPyPrinter):
 
 
 def function_specs(structure: Structure) -> list[FunctionSpec]:
-    """Describe every generated function of ``structure`` (symbols in, expressions out)."""
+    """Describe every generated function of ``structure`` (symbols in, expressions out).
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    """
     sym = symbols_for(structure)
     rb = rigid_body(structure)
     eq = equilibrium(structure)
@@ -249,7 +255,17 @@ def generate_source(structure: Structure, cse: bool = True, key: str | None = No
 
 
 def build_module(structure: Structure, cse: bool = True, write: bool = True):
-    """Generate, (atomically) cache and import the module of ``structure``."""
+    """Generate, (atomically) cache and import the module of ``structure``.
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    cse : bool
+        Common-subexpression elimination in the generated code.
+    write : bool
+        Write the module to the disk cache.
+    """
     path = cache.cache_path(structure)
     text = generate_source(structure, cse=cse)
     if write:

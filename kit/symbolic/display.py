@@ -27,7 +27,13 @@ __all__ = ["display_equations", "equations_text"]
 
 
 def display_equations(structure: Structure) -> list[tuple[str, sp.Basic, sp.Basic]]:
-    """``(label, lhs, rhs)`` triples of the display equations of ``structure``."""
+    """``(label, lhs, rhs)`` triples of the display equations of ``structure``.
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    """
     N = structure.n_rotors
     i, j = sp.symbols("i j", integer=True)
     f, x, y = sp.IndexedBase("f"), sp.IndexedBase("x"), sp.IndexedBase("y")
@@ -115,7 +121,19 @@ def _latex(expr) -> str:
 
 
 def n_z_sum(total_f, nz, m, g):
-    """``n_z sum_i f_i - m g``."""
+    """``n_z sum_i f_i - m g``.
+
+    Parameters
+    ----------
+    total_f : sympy expression
+        Sum of the thrusts, in N.
+    nz : sympy expression
+        World-up component along body z.
+    m : sympy expression
+        Mass, in kg.
+    g : sympy expression
+        Gravity, in m/s^2.
+    """
     return nz * total_f - m * g
 
 

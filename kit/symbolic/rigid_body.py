@@ -220,7 +220,17 @@ def _rotor_momentum(sym: Symbols, f) -> sp.Expr:
 
 
 def moment_expr(sym: Symbols, omega, f) -> sp.Matrix:
-    """Net moment minus gyroscopic term, ``J omega_dot``, for given omega and thrusts (N m)."""
+    """Net moment minus gyroscopic term, ``J omega_dot``, for given omega and thrusts (N m).
+
+    Parameters
+    ----------
+    sym : Symbols
+        The structure's symbols (:func:`symbols_for`).
+    omega : sympy Matrix (3,)
+        Body angular velocity, in rad/s.
+    f : sequence of sympy expressions
+        Rotor thrusts, in N.
+    """
     st = sym.structure
     x, y = sym.rotor("x"), sym.rotor("y")
     s, kappa = sym.rotor("s"), sym.rotor("kappa")

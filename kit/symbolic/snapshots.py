@@ -44,7 +44,13 @@ def _matrix_lines(name: str, mat: sp.Matrix) -> list[str]:
 
 
 def snapshot_text(structure: Structure) -> str:
-    """Canonical text of ``structure``'s derived expressions."""
+    """Canonical text of ``structure``'s derived expressions.
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    """
     sym = symbols_for(structure)
     rb = rigid_body(structure)
     eq = equilibrium(structure)
@@ -64,12 +70,26 @@ def snapshot_text(structure: Structure) -> str:
 
 
 def snapshot_path(structure: Structure, directory: Path | None = None) -> Path:
-    """File of ``structure``'s snapshot."""
+    """File of ``structure``'s snapshot.
+
+    Parameters
+    ----------
+    structure : Structure
+        Rotor count, wheel, drag law.
+    directory : Path or None
+        Folder of the snapshots (default: tests/golden).
+    """
     return (directory or golden_dir()) / f"{structure.key}.txt"
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Command line: compare (default) or ``--refresh`` the stored snapshots."""
+    """Command line: compare (default) or ``--refresh`` the stored snapshots.
+
+    Parameters
+    ----------
+    argv : list of str or None
+        Command-line arguments (default: sys.argv).
+    """
     parser = argparse.ArgumentParser(prog="python -m kit.symbolic.snapshots")
     parser.add_argument("--refresh", action="store_true", help="rewrite the stored snapshots")
     parser.add_argument("--dir", type=Path, default=None, help="snapshot folder")

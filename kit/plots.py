@@ -346,7 +346,7 @@ def top_view_figure(extent_m: float):
 
     e = float(extent_m)
     p = new_figure("Layout seen from above", "right, \u2212y_B (m)", "forward, x_B (m)",
-                   width=380, height=380, match_aspect=True,
+                   width=520, height=380, match_aspect=True,
                    x_range=Range1d(-e, e), y_range=Range1d(-e, e))
     s = {
         "rotors": _source(sx=[], sy=[], r=[], name=[], colour=[], spin=[], label_sy=[]),
@@ -372,6 +372,9 @@ def top_view_figure(extent_m: float):
               fill_color="white", line_color=COLOURS["com"], line_width=2,
               legend_label="centre of mass")
     _legend_style(p, "bottom_left")
+    # outside the plot area, so that it never hides a rotor; a square frame keeps discs round
+    p.add_layout(p.legend[0], "right")
+    p.frame_width = p.frame_height = 330
     return p, s
 
 
@@ -422,11 +425,24 @@ def top_view_data(design, mp) -> dict[str, dict]:
     }
 
 
-def extent_of(mp) -> float:
-    """Half-width of a square view holding every rotor disc, in m."""
+def extent_of(mp, design=None) -> float:
+    """Half-width of a square view holding every rotor disc and its label, in m.
+
+    Parameters
+    ----------
+    mp : MassProperties
+        Hub positions about the CoM.
+    design : Design or None
+        For the rotor diameters (discs drawn at 0.3 of the largest hub distance without one).
+    """
     pos = mp.rotor_positions_m
     span = float(np.max(np.abs(pos[:, :2]))) if len(pos) else 0.1
-    return 1.45 * span
+    if design is None:
+        return 1.45 * span
+    radii = np.array([0.5 * (r.diameter_m if r.diameter_m else 0.3 * span)
+                      for r in design.rotors])
+    reach = np.abs(pos[:, :2]).max(axis=1) + radii
+    return float(1.12 * reach.max() + 0.06 * span)
 
 
 # --- thrust bars (hover and failure) --------------------------------------------------------

@@ -81,7 +81,8 @@ class OverviewPanel(Panel):
         super().__init__()
         self.vehicle = as_vehicle(design)
         self.title = f"Design overview: {self.vehicle.design.name}"
-        self.figure, self.sources = plots.top_view_figure(plots.extent_of(self.vehicle.mp))
+        self.figure, self.sources = plots.top_view_figure(
+            plots.extent_of(self.vehicle.mp, self.vehicle.design))
         self.layout = self.figure
         self.sort_by = w.Dropdown(options=list(SORT_KEYS), value="file order",
                                   description="parts by")

@@ -13,15 +13,14 @@ import re
 from html.parser import HTMLParser
 from urllib.parse import urlsplit
 
-#: (tag, attribute) pairs whose value the browser fetches.
+#: Attributes the browser fetches on whatever element carries them (script, image, frame and
+#: media sources, media posters, legacy backgrounds).
+_FETCHED_ANY = {"src", "poster", "background"}
+#: (tag, attribute) pairs fetched only on those elements.
 _FETCHED = {
-    ("script", "src"), ("img", "src"), ("iframe", "src"), ("frame", "src"), ("source", "src"),
-    ("video", "src"), ("video", "poster"), ("audio", "src"), ("track", "src"), ("embed", "src"),
-    ("input", "src"), ("object", "data"), ("link", "href"), ("image", "href"),
-    ("image", "xlink:href"), ("use", "href"), ("use", "xlink:href"), ("feimage", "href"),
-    ("base", "href"),
+    ("object", "data"), ("link", "href"), ("image", "href"), ("image", "xlink:href"),
+    ("use", "href"), ("use", "xlink:href"), ("feimage", "href"), ("base", "href"),
 }
-_SRCSET = {"img", "source"}
 _CSS_URL_RE = re.compile(r"""url\(\s*(?P<q>['"]?)(?P<u>.*?)(?P=q)\s*\)""", re.IGNORECASE)
 _CSS_IMPORT_RE = re.compile(r"""@import\s+(?P<q>['"])(?P<u>.*?)(?P=q)""", re.IGNORECASE)
 
@@ -58,11 +57,11 @@ class _Collector(HTMLParser):
             if value is None:
                 continue
             name = name.lower()
-            if (tag, name) in _FETCHED:
+            if name in _FETCHED_ANY or (tag, name) in _FETCHED:
                 if tag == "link" and not _link_fetches(attrs):
                     continue
                 self.refs.append(value)
-            elif name == "srcset" and tag in _SRCSET:
+            elif name in ("srcset", "imagesrcset"):
                 self.refs += [c.strip().split()[0] for c in value.split(",") if c.strip()]
             elif name == "style":
                 self.refs += css_references(value)

@@ -27,11 +27,9 @@ Beer, Johnston, Cornwell: Vector Mechanics for Engineers: Dynamics, 9th ed., sec
 
 from __future__ import annotations
 
-import contextlib
 import html
 import math
 import multiprocessing
-import os
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, replace
@@ -266,35 +264,30 @@ def _row_task(design: Design, part: str, dy_m: float, x_offsets_m: Sequence[floa
     return out
 
 
-#: Thread-count variables of the BLAS / OpenMP runtimes that numpy and scipy may load.
-_BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
-
-
-@contextlib.contextmanager
-def single_threaded_children():
-    """Worker processes started inside this block use one BLAS thread each.
+def _one_blas_thread() -> None:
+    """Worker initializer: one BLAS / OpenMP thread per worker process.
 
     Each point of a sweep does many small linear-algebra calls; with several worker processes,
     multi-threaded BLAS in each of them oversubscribes the cores (measured here: 2 workers took
-    1.4x the time of 1). Processes inherit the environment when they start, so it is set while
-    the pool starts its workers and restored after; the parent's BLAS is not affected.
+    1.4x the time of 1). threadpoolctl limits the libraries already loaded in the worker.
     """
-    saved = {k: os.environ.get(k) for k in _BLAS_THREAD_VARS}
-    os.environ.update({k: "1" for k in _BLAS_THREAD_VARS})
-    try:
-        yield
-    finally:
-        for k, v in saved.items():
-            if v is None:
-                os.environ.pop(k, None)
-            else:
-                os.environ[k] = v
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(1)
 
 
 def default_executor(max_workers: int = DEFAULT_WORKERS) -> ProcessPoolExecutor:
-    """A process pool of ``max_workers`` (spawned processes: safe with threads, any OS)."""
+    """A process pool of ``max_workers`` (spawned processes: safe with threads, any OS), each
+    worker with one BLAS thread.
+
+    Parameters
+    ----------
+    max_workers : int
+        Worker processes (default 2, the cores of the reference machine).
+    """
     return ProcessPoolExecutor(max_workers=max_workers,
-                               mp_context=multiprocessing.get_context("spawn"))
+                               mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_one_blas_thread)
 
 
 def placement_sweep(design: Design, part: str, x_offsets_m, y_offsets_m, failed=(),
@@ -342,9 +335,8 @@ def placement_sweep(design: Design, part: str, x_offsets_m, y_offsets_m, failed=
     try:
         if progress is not None:
             progress(0, total)
-        with single_threaded_children():  # workers start at the first submits
-            futs = {ex.submit(_row_task, design, part, float(dy), tuple(float(v) for v in xs),
-                              failed, thrust_ratio): j for j, dy in enumerate(ys)}
+        futs = {ex.submit(_row_task, design, part, float(dy), tuple(float(v) for v in xs),
+                          failed, thrust_ratio): j for j, dy in enumerate(ys)}
         done = 0
         for fut in as_completed(futs):
             rows[futs[fut]] = fut.result()

@@ -25,6 +25,8 @@ import math
 
 import numpy as np
 
+from kit.analysis.htmltable import num
+
 #: Okabe-Ito colours (Okabe & Ito 2008), by name.
 OKABE_ITO = {
     "black": "#000000", "orange": "#E69F00", "sky_blue": "#56B4E9", "green": "#009E73",
@@ -77,15 +79,9 @@ def rounded(values, sig: int = SIG) -> list[float]:
 
 def fmt(x, sig: int = 3, unit: str = "") -> str:
     """A readout: ``sig`` significant figures, the unit after a space; a dash for None/nan."""
-    if x is None:
-        return "\u2013"
-    if isinstance(x, bool | np.bool_):
-        return "yes" if x else "no"
-    x = float(x)
-    if not math.isfinite(x):
-        return "\u2013" if math.isnan(x) else ("\u221e" if x > 0 else "\u2212\u221e")
-    s = "0" if x == 0 else f"{x:.{sig}g}"
-    return f"{s} {unit}" if unit else s
+    s = num(x, sig)
+    finite = x is not None and not isinstance(x, bool | np.bool_) and math.isfinite(float(x))
+    return f"{s} {unit}" if unit and finite else s
 
 
 # --- look -----------------------------------------------------------------------------------

@@ -11,14 +11,17 @@ CSS_CLASS = "rb-table"
 
 
 def num(x, sig: int = 4) -> str:
-    """A number with ``sig`` significant figures; booleans as yes/no; None/nan as a dash."""
+    """A number with ``sig`` significant figures; booleans as yes/no; None/nan as a dash.
+
+    The one number format of tables and readouts (plain Unicode, safe in HTML).
+    """
     if x is None:
-        return "&ndash;"
+        return "\u2013"
     if isinstance(x, bool | np.bool_):
         return "yes" if x else "no"
     x = float(x)
     if not math.isfinite(x):
-        return "&infin;" if x > 0 else ("&minus;&infin;" if x < 0 else "&ndash;")
+        return "\u2013" if math.isnan(x) else ("\u221e" if x > 0 else "\u2212\u221e")
     if x == 0:
         return "0"
     return f"{x:.{sig}g}"

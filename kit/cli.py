@@ -17,6 +17,7 @@ from kit.errors import DesignError, DesignWarning, OptionError, RecordError, Rot
 EXIT_OK = 0
 EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
+EXIT_WORSE = 3
 
 
 def _load_with_warnings(path: str):
@@ -182,11 +183,55 @@ def cmd_sweep(args) -> int:
 def cmd_record(args) -> int:
     from kit.record.render import record_design
 
+    previous = None
+    if getattr(args, "previous", None):
+        from kit.compare import load_revision
+
+        previous = load_revision(args.previous)  # invalid -> exit 2 before anything runs
     result = record_design(args.design, workbooks=args.workbooks, out_dir=args.out,
                            force=args.force)
     for line in result.lines():
         print(line)
+    if previous is not None:
+        from kit.compare import compare, load_revision
+        from kit.record.compare_page import record_previous
+
+        cmp = compare(previous, load_revision(args.design))
+        page = record_previous(cmp, args.out, force=True)
+        print(f"comparison with {args.previous}: {cmp.verdict_text()} -> {page}")
     return EXIT_OK if result.ok else EXIT_FAILED
+
+
+def cmd_compare(args) -> int:
+    """Compare two revisions; exit 3 when a check turned to fail (strict: or eroded)."""
+    from kit.compare import compare, load_revision
+
+    if not (0 < args.erosion <= 1):
+        raise OptionError(f"--erosion: {args.erosion!r} -> a fraction in (0, 1], e.g. 0.25")
+    old = load_revision(args.old)
+    new = load_revision(args.new)
+    cmp = compare(old, new, erosion=args.erosion, strict=args.strict)
+    if args.json:
+        json.dump(cmp.to_dict(), sys.stdout, indent=1)
+        sys.stdout.write("\n")
+    else:
+        print(cmp.summary_text())
+    if args.html:
+        from kit.record.compare_page import write_comparison
+
+        page = write_comparison(cmp, args.html, force=args.force)
+        if not args.json:
+            print(f"comparison record: {page}")
+    return EXIT_WORSE if cmp.worse else EXIT_OK
+
+
+def cmd_history(args) -> int:
+    from kit.record.history import write_history
+
+    result = write_history(args.dir, add=args.add or (), force=args.force)
+    for line in result.lines():
+        print(line)
+    return EXIT_OK
 
 
 def cmd_new(args) -> int:
@@ -194,6 +239,12 @@ def cmd_new(args) -> int:
 
     folder = new_folder(args.dir, args.design)
     print(f"workbook folder ready: {folder}")
+    from kit.record.history import seed
+
+    first = seed(folder)
+    if first is not None:
+        print(f"revision history started: {first} (add revisions with `rotorbook history "
+              f"{args.dir} --add DESIGN`)")
     return EXIT_OK
 
 
@@ -238,7 +289,37 @@ def build_parser() -> argparse.ArgumentParser:
                    help="workbook names (default: all templates)")
     r.add_argument("--out", default="records", metavar="DIR", help="output folder")
     r.add_argument("--force", action="store_true", help="replace existing records")
+    r.add_argument("--previous", default=None, metavar="OLD",
+                   help="the previous revision (design file or analyze --json output): adds "
+                        "the comparison page to the index")
     r.set_defaults(func=cmd_record)
+
+    cp = sub.add_parser(
+        "compare", help="two revisions side by side: inputs, results, checks (exit 3: worse)",
+        description="Compare two design revisions (design files or `analyze --json` outputs). "
+                    "Exit status: 0 nothing got worse; 3 a design check turned to fail (with "
+                    "--strict also: a passing check lost more than the --erosion fraction of "
+                    "its margin); 2 invalid input.")
+    cp.add_argument("old", metavar="OLD")
+    cp.add_argument("new", metavar="NEW")
+    cp.add_argument("--json", action="store_true", help="JSON (schema rotorbook.comparison/1)")
+    cp.add_argument("--strict", action="store_true",
+                    help="an eroding check counts as worse (exit 3)")
+    cp.add_argument("--erosion", type=float, default=0.25, metavar="F",
+                    help="fraction of a passing check's margin it may lose before it is "
+                         "listed as eroding (default 0.25)")
+    cp.add_argument("--html", default=None, metavar="FILE",
+                    help="also write the comparison record (self-contained HTML)")
+    cp.add_argument("--force", action="store_true", help="replace an existing --html file")
+    cp.set_defaults(func=cmd_compare)
+
+    hi = sub.add_parser("history", help="revisions of a design folder: verdicts, comparisons")
+    hi.add_argument("dir", metavar="DIR", help="a folder made by `rotorbook new`")
+    hi.add_argument("--add", nargs="+", default=None, metavar="DESIGN",
+                    help="design files to add, in order, as the next revisions")
+    hi.add_argument("--force", action="store_true",
+                    help="add a revision even when the design name differs")
+    hi.set_defaults(func=cmd_history)
 
     n = sub.add_parser("new", help="a per-design folder with the workbooks pointed at it")
     n.add_argument("dir", metavar="DIR")

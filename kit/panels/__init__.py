@@ -11,6 +11,7 @@ HoverPanel         hover thrusts against limits, torque authority, T/W, with a p
 FailurePanel       failed rotors, free directions, equilibrium, poles, risk, time response
 WheelPanel         H2 ratio against wheel momentum with a marker, flags, wheel sizing
 PlacementPanel     a part moved over a grid: risk / controllability map, with progress
+ComparePanel       two revisions: a chosen quantity per case, one case's thrusts and poles
 =================  =========================================================================
 
 BokehJS comes once from the local Bokeh installation: :mod:`kit.panels.serve` is a Jupyter
@@ -28,6 +29,7 @@ _PANELS = {
     "FailurePanel": "kit.panels.failure",
     "WheelPanel": "kit.panels.wheel",
     "PlacementPanel": "kit.panels.placement",
+    "ComparePanel": "kit.panels.compare",
     "TextProgress": "kit.panels.progress",
     "WidgetProgress": "kit.panels.progress",
 }

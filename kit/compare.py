@@ -27,6 +27,7 @@ Two numbers count as equal when they differ by less than :data:`SAME_REL` relati
 from __future__ import annotations
 
 import hashlib
+import html
 import json
 import math
 import warnings
@@ -74,7 +75,7 @@ def unit_of(name: str) -> str:
 # -- the two inputs -------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Revision:
     """One side of a comparison: where it came from, its design (when a design file was given)
     and the JSON of its analysis."""
@@ -84,6 +85,10 @@ class Revision:
     kind: str  # "design" or "analysis"
     analysis: dict
     design: Design | None = None
+
+    def __repr__(self) -> str:
+        return (f"<Revision {self.name!r} rev {self.revision!r} from {self.kind} "
+                f"{Path(self.source).name!r}>")
 
     @property
     def name(self) -> str:
@@ -117,6 +122,17 @@ class Revision:
         return {"file": self.source, "file_sha256": self.file_sha256, "kind": self.kind,
                 "name": self.name, "revision": self.revision,
                 "design_sha256": self.design_sha256, "verdict": self.verdict}
+
+
+def checks_of(rev: Revision) -> list:
+    """The design checks of a revision's analysis as :class:`kit.analysis.checks.Check`."""
+    from dataclasses import fields as dc_fields
+
+    from kit.analysis.checks import Check
+
+    names = {f.name for f in dc_fields(Check)}
+    return [Check(**{k: v for k, v in c.items() if k in names}) for c in rev.checks
+            if {"name", "value", "limit", "passed"} <= c.keys()]
 
 
 def revision_from_design(design: Design, analysis: dict | None = None, source: str = "",
@@ -603,7 +619,7 @@ def compare_checks(old: list, new: list, erosion: float = DEFAULT_EROSION) -> tu
 # -- the comparison -------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Comparison:
     """Two revisions compared; :meth:`to_dict` is the JSON of ``rotorbook compare --json``."""
 
@@ -621,6 +637,10 @@ class Comparison:
     checks_eroding: list
     wheel: list
     notes: list = field(default_factory=list)
+
+    def __repr__(self) -> str:
+        return (f"<Comparison {self.old.name!r} rev {self.old.revision!r} -> rev "
+                f"{self.new.revision!r}: {self.verdict_text()}>")
 
     @property
     def regressions(self) -> list[dict]:
@@ -676,6 +696,48 @@ class Comparison:
             "wheel_study": self.wheel,
             "notes": self.notes,
         }
+
+    def _repr_html_(self) -> str:
+        """Static tables: verdict, checks that changed or erode, inputs, then what changed."""
+        from kit.analysis.htmltable import table
+
+        o, n = self.old, self.new
+        cls = "rb-fail" if self.worse else "rb-pass"
+        out = [f'<p><b class="{cls}">{html.escape(self.verdict_text())}</b></p>',
+               table(["", "design", "revision", "file", "file SHA-256", "verdict"],
+                     [(k, r.name, r.revision, Path(r.source).name, r.file_sha256, r.verdict)
+                      for k, r in (("old", o), ("new", n))], "Revisions")]
+        if self.checks_changed:
+            out.append(table(["change", "case", "check", "old value", "new value", "limit"],
+                             [(c["change"], c["case"] or "design", c["name"],
+                               _text(c["old_value"]), _text(c["new_value"]),
+                               f"{c['relation']} {_text(c['limit'])} {c['unit']}".strip())
+                              for c in self.checks_changed], "Checks whose verdict changed"))
+        if self.checks_eroding:
+            out.append(table(["case", "check", "old margin", "new margin", "margin lost"],
+                             [(c["case"] or "design", c["name"], c["old_margin"],
+                               c["new_margin"], f"{100 * c['shrink_fraction']:.0f} %")
+                              for c in self.checks_eroding],
+                             f"Checks eroding (more than {100 * self.erosion:g} % of the "
+                             "margin lost)"))
+        if self.inputs:
+            out.append(table(["item", "field", "change", "old", "new", "unit"],
+                             [(r["item"], r["field"], r["change"], _text(r["old"]),
+                               _text(r["new"]), r["unit"]) for r in self.inputs],
+                             "Input changes"))
+        rows = [(title, r["quantity"], _text(r["old"]), _text(r["new"]), r["change"],
+                 r["relative_change"], r["unit"])
+                for title, group in (("mass properties", self.mass_properties),
+                                     ("hover", self.hover), ("wheel", self.wheel))
+                for r in group if r["changed"]]
+        rows += [(c["case"] + ("" if c["status"] == "both" else f" ({c['status']})"),
+                  r["quantity"], _text(r["old"]), _text(r["new"]), r["change"],
+                  r["relative_change"], r["unit"])
+                 for c in self.cases for r in c["rows"] if r["changed"]]
+        if rows:
+            out.append(table(["where", "quantity", "old", "new", "change", "relative change",
+                              "unit"], rows, "Results that changed"))
+        return "".join(out)
 
     def summary_text(self) -> str:
         """The text ``rotorbook compare`` prints: verdict first, then only what changed."""

@@ -254,11 +254,70 @@ report
     ]
 
 
+def compare_nb():
+    return [
+        md(header(
+            "Compare revisions workbook",
+            "What changed between two revisions of one design: the inputs field by field (parts "
+            "and rotors matched by name), mass properties, every case's operating point, spin "
+            "rate, tilt, busiest-rotor margin, control figures and thrust-saturation rate, and "
+            "every design check whose verdict changed or whose margin is eroding.",
+            "none of its own: both revisions are analysed with the kit's analysis (as in the "
+            "other workbooks) and the results are subtracted; relative change "
+            "$(x_{new} - x_{old}) / |x_{old}|$; a check's margin is $x - x_{lim}$ for "
+            "$\\geq$ and $x_{lim} - x$ for $\\leq$.",
+            "as in the hover, rotor-out and momentum-wheel workbooks.",
+            "revisions/survey_quad_rev_b.toml")),
+        code(PARAMS_NOTE
+             + 'DESIGN_PATH = "../data/revisions/survey_quad_rev_b.toml"  # the new revision\n'
+             + "# the previous revision: a design file or the output of `rotorbook analyze "
+               "--json`\n"
+             + 'PREVIOUS_PATH = "../data/designs/survey_quad.toml"', tags=["parameters"]),
+        code("""
+from pathlib import Path
+
+from IPython.display import Markdown, display
+
+from kit import panels
+from kit import workbook as wb
+from kit.compare import checks_of, compare, load_revision
+
+new = load_revision(DESIGN_PATH)
+if not Path(PREVIOUS_PATH).is_file():
+    display(Markdown(f"**PREVIOUS_PATH {PREVIOUS_PATH!r} is not a file**: set it to the "
+                     "previous revision of this design. Shown below: this revision against "
+                     "itself."))
+    old = new
+else:
+    old = load_revision(PREVIOUS_PATH)
+if old.name != new.name:
+    display(Markdown(f"**PREVIOUS_PATH is a revision of another design** ({old.name!r}, not "
+                     f"{new.name!r}): set it to the previous revision of this design. Shown "
+                     "below: this revision against itself."))
+    old = new
+panels.setup()
+"""),
+        md("## Verdict and what changed\nChecks that now fail come first; a passing check is "
+           "*eroding* when it lost more than the stated fraction of its margin to the limit."),
+        code("""
+cmp = compare(old, new)
+cmp
+"""),
+        md("## Explore\nPick the quantity to compare across every case, and the case whose "
+           "thrusts and closed-loop poles are drawn over each other."),
+        code("panels.ComparePanel(cmp)"),
+        md("## Design checks of the new revision"),
+        code("wb.Checks(checks_of(new))"),
+        *CLOSE,
+    ]
+
+
 NOTEBOOKS = {
     "hover.ipynb": hover_nb,
     "rotor_out.ipynb": rotor_out_nb,
     "momentum_wheel.ipynb": wheel_nb,
     "design_review.ipynb": review_nb,
+    "compare_revisions.ipynb": compare_nb,
 }
 
 

@@ -5,6 +5,9 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed-stamp
 DEMO_DESIGNS := $(wildcard data/designs/*.toml)
+# an invented second revision of a demo design, recorded with its comparison page
+DEMO_REVISION := data/revisions/survey_quad_rev_b.toml
+DEMO_PREVIOUS := data/designs/survey_quad.toml
 export ROTORBOOK_CACHE_DIR ?= $(CURDIR)/.cache/rotorbook
 
 .PHONY: demo test test-fast lint bench lab chromium snapshots outputs clean
@@ -24,15 +27,19 @@ chromium:
 	  else echo "chromium is missing and this is not root: browser tests will be skipped"; fi; \
 	fi
 
-## make demo: check every demo design, record it into records/<design>/, print the index pages
+## make demo: check every demo design, record it into records/<design>/, print the index pages;
+## then record the invented revision B of the survey quad with its comparison against revision A
 demo: $(STAMP)
 	$(VENV)/bin/rotorbook check $(DEMO_DESIGNS)
 	@for f in $(DEMO_DESIGNS); do \
 	  out=records/$$(basename $$f .toml); \
 	  $(VENV)/bin/rotorbook record $$f --out $$out --force 2> >(grep -v 'without encryption' >&2) || exit 1; \
 	done
+	$(VENV)/bin/rotorbook record $(DEMO_REVISION) --previous $(DEMO_PREVIOUS) \
+	  --out records/$$(basename $(DEMO_REVISION) .toml) --force 2> >(grep -v 'without encryption' >&2)
 	@echo "Calculation records (open in a browser):"
-	@for f in $(DEMO_DESIGNS); do echo "  $(CURDIR)/records/$$(basename $$f .toml)/index.html"; done
+	@for f in $(DEMO_DESIGNS) $(DEMO_REVISION); do echo "  $(CURDIR)/records/$$(basename $$f .toml)/index.html"; done
+	@echo "Revision comparison: $(CURDIR)/records/$$(basename $(DEMO_REVISION) .toml)/compare_A_to_B.html"
 
 lint: $(STAMP)
 	$(PY) -m ruff check kit tests workbooks

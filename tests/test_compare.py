@@ -413,3 +413,55 @@ def test_compare_panel_follows_the_comparison(analyses):
     with pytest.raises(ValueError, match="quantity"):
         compare_view(cmp, "no such quantity", cmp.cases[0]["case"])
     assert math.isfinite(bars["value"][1])
+
+
+@pytest.mark.slow
+def test_comparison_record_in_chromium_offline(analyses, tmp_path):
+    from pathlib import Path
+
+    from browser_helpers import (
+        ARTIFACTS,
+        CANVASES_JS,
+        CHROMIUM,
+        CHROMIUM_ARGS,
+        Offline,
+        wait_until,
+    )
+
+    if not Path(CHROMIUM).exists():
+        pytest.skip(f"Debian's chromium is not installed at {CHROMIUM}")
+    from playwright.sync_api import sync_playwright
+
+    from kit.record.compare_page import write_comparison
+
+    da, aa = analyses(SURVEY)
+    db, ab = analyses(REV_B)
+    page_path = write_comparison(compare(_rev(da, aa), _rev(db, ab)), tmp_path / "c.html")
+    offline = Offline(allow_file=True)
+    requested: list[str] = []
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS)
+        try:
+            context = browser.new_context(viewport={"width": 1280, "height": 900})
+            context.route("**/*", offline)
+            page = context.new_page()
+            page.on("request", lambda r: requested.append(r.url))
+            page.goto(page_path.as_uri(), wait_until="load", timeout=60_000)
+            # the verdict is on the first screen, right under the header
+            verdict = page.locator(".rb-verdict")
+            assert verdict.inner_text().startswith("WORSE")
+            assert verdict.bounding_box()["y"] < 900
+            header = page.locator("header.rb-sheet-head").inner_text()
+            assert da.sha256 in header and db.sha256 in header
+            # layout, 7 cases x (thrust, poles), wheel curve: Bokeh drew them all
+            canvases = wait_until(lambda: [c for c in page.evaluate(
+                f"() => ({CANVASES_JS})(document.body)") if c["cw"] > 0 and c["ch"] > 0],
+                30.0, "Bokeh canvases of non-zero size")
+            assert len(canvases) >= 15, canvases
+            ARTIFACTS.mkdir(parents=True, exist_ok=True)
+            page.screenshot(path=str(ARTIFACTS / "comparison_first_screen.png"))
+            context.close()
+        finally:
+            browser.close()
+    assert not offline.aborted, offline.aborted
+    assert all(u.startswith(("file:", "data:", "blob:", "about:")) for u in requested)

@@ -674,12 +674,24 @@ class Comparison:
             return "NO CHANGE: the two revisions give the same inputs, results and verdicts"
         return "NOT WORSE: no design check turned to fail"
 
+    def counts_text(self) -> str:
+        """One line of counts: what changed where."""
+        kinds = [c["change"] for c in self.checks_changed]
+        n_cases = sum(c["changed"] for c in self.cases)
+        return (f"inputs: {len(self.inputs)} changed; mass properties: "
+                f"{sum(r['changed'] for r in self.mass_properties)} changed; cases: {n_cases} of "
+                f"{len(self.cases)} changed; checks: {len(self.regressions)} now fail, "
+                f"{kinds.count('fail -> pass')} now pass, "
+                f"{sum(k.startswith('check gone') for k in kinds)} gone, "
+                f"{len(self.checks_eroding)} eroding")
+
     def to_dict(self) -> dict:
         return {
             "schema": SCHEMA,
             "old": self.old.describe(),
             "new": self.new.describe(),
-            "verdict": {"text": self.verdict_text(), "worse": self.worse,
+            "verdict": {"text": self.verdict_text(), "counts": self.counts_text(),
+                        "worse": self.worse,
                         "unchanged": self.unchanged, "exit_status": self.exit_status,
                         "regressions": len(self.regressions),
                         "eroding": len(self.checks_eroding)},
@@ -742,7 +754,7 @@ class Comparison:
     def summary_text(self) -> str:
         """The text ``rotorbook compare`` prints: verdict first, then only what changed."""
         o, n = self.old, self.new
-        lines = [self.verdict_text(),
+        lines = [self.verdict_text(), self.counts_text(),
                  f"old: {o.name} (revision {o.revision}) {o.source}  sha256 {o.file_sha256[:12]}"
                  f"  verdict {o.verdict}",
                  f"new: {n.name} (revision {n.revision}) {n.source}  sha256 {n.file_sha256[:12]}"

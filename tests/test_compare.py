@@ -368,6 +368,12 @@ def test_revision_history_in_a_design_folder(tmp_path, capsys):
     rdir = folder / "revisions"
     assert (rdir / "02-B.toml").read_bytes() == REV_B.read_bytes()
     assert (folder / "survey_quad.toml").read_bytes() == REV_B.read_bytes()
+    import nbformat
+
+    nb = nbformat.read(folder / "compare_revisions.ipynb", as_version=4)
+    params = next(c for c in nb.cells if "parameters" in c.metadata.get("tags", []))
+    assert 'PREVIOUS_PATH = "revisions/01-A.toml"' in params.source
+    assert 'DESIGN_PATH = "survey_quad.toml"' in params.source
     index = (rdir / "index.html").read_text(encoding="utf-8")
     assert index.index("01-A.toml") < index.index("02-B.toml")
     assert 'href="compare_01_to_02.html"' in index and index.count("FAIL") >= 2

@@ -195,7 +195,8 @@ def render_comparison(cmp: Comparison, date: str | None = None, commit: str | No
 
     verdict_cls = "rb-verdict rb-worse" if cmp.worse else "rb-verdict"
     sections = [f'<div class="{verdict_cls}" role="status"><strong>{e(cmp.verdict_text())}'
-                f"</strong><br>exit status of <code>rotorbook compare</code>: "
+                f"</strong><br>{e(cmp.counts_text())}<br>exit status of "
+                f"<code>rotorbook compare</code>: "
                 f"{cmp.exit_status}{' (strict)' if cmp.strict else ''}</div>"]
     sections.append(f"<h2>Design checks whose verdict changed ({len(cmp.checks_changed)})</h2>")
     sections.append(_table(["check", "case", "old value", "new value", "limit", "unit",

@@ -4,7 +4,8 @@ The folder holds its design file (``DIR/<design>.toml``, the one its workbooks r
 ``DIR/revisions/``, a copy of every revision in order: ``01-<revision>.toml``,
 ``02-<revision>.toml``, ... with the JSON of each one's analysis beside it
 (``NN-<revision>.analysis.json``, reused while the design file's SHA-256 matches). Adding a
-revision copies the new file in as the next number and makes it the folder's design file.
+revision copies the new file in as the next number and makes it the folder's design file; the
+folder's ``compare_revisions`` workbook is pointed at the revision before it.
 
 :func:`write_history` then writes ``DIR/revisions/index.html``: the revisions in order with
 each one's verdict, and a comparison record (:mod:`kit.record.compare_page`) between every
@@ -101,6 +102,31 @@ def revision_files(folder: Path) -> list[tuple[int, Path]]:
     return sorted(out)
 
 
+def point_compare_workbook(folder: Path, previous: Path) -> bool:
+    """Set ``PREVIOUS_PATH`` of the folder's ``compare_revisions.ipynb`` (when it has one) to
+    ``previous``, relative to the folder; its stored outputs of that cell are cleared."""
+    import nbformat
+
+    from kit.record import execute as _ex
+
+    path = folder / "compare_revisions.ipynb"
+    if not path.is_file():
+        return False
+    nb = nbformat.read(path, as_version=4)
+    cell = nb.cells[_ex.parameters_index(nb)]
+    rel = previous.relative_to(folder).as_posix()
+    line = f"PREVIOUS_PATH = {json.dumps(rel)}"
+    src, n = re.subn(r"(?m)^PREVIOUS_PATH\s*=.*$", lambda _m: line, cell.source)
+    if not n:
+        return False
+    cell.source = src
+    if cell.cell_type == "code":
+        cell.outputs = []
+        cell.execution_count = None
+    write_atomic(path, nbformat.writes(nb) + "\n")
+    return True
+
+
 def seed(folder: str | Path) -> Path | None:
     """Start the history of a folder with its design file as revision 01 (once)."""
     folder = Path(folder)
@@ -111,6 +137,7 @@ def seed(folder: str | Path) -> Path | None:
     target = folder / REVISIONS / f"01-{_safe(d.revision)}.toml"
     target.parent.mkdir(parents=True, exist_ok=True)
     shutil.copy2(design_file, target)
+    point_compare_workbook(folder, target)
     return target
 
 
@@ -148,6 +175,7 @@ def add_revision(folder: str | Path, design_path: str | Path, force: bool = Fals
     shutil.copyfile(src, target)
     if src.resolve() != current.resolve():
         shutil.copyfile(src, current)
+    point_compare_workbook(folder, last)
     return f"{src}: added as revision {last_no + 1:02d}"
 
 

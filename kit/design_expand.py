@@ -345,6 +345,9 @@ def expand(data: dict, c: _Collector, base_dir: Path | None = None) -> Expansion
                 f = rotorfit.fit(rotorfit.read_stand_file(path, shown), names)
             except rotorfit.StandDataError as exc:
                 c.note(f"{_label('rotor', idx[0], rotors[idx[0]])}.stand_data: {exc}")
+                for i in idx:  # the problem is recorded; no second "missing" line per rotor
+                    rotors[i].setdefault("thrust_coeff_n_s2", 1.0)
+                    rotors[i].setdefault("torque_per_thrust_m", 1.0)
                 continue
             fits.append(f)
             for reason in f.poor:

@@ -60,6 +60,12 @@ class Battery:
         source: thrust ~ speed^2, speed ~ voltage for a given motor and propeller)."""
         return (self.end_voltage_v / self.nominal_voltage_v) ** 2
 
+    def _repr_html_(self) -> str:
+        return (f"<p>Battery: {self.nominal_voltage_v:g} V nominal, {self.end_voltage_v:g} V at "
+                f"end of discharge; max thrust derated by (V_end/V_nom)^2 = "
+                f"{self.thrust_scale:.4g} for the low-battery load case (common practice, no "
+                "source).</p>")
+
 
 @dataclass(frozen=True)
 class DegradedCase:
@@ -92,6 +98,16 @@ class BrysonLimits:
         return {"weight_rate": 1.0 / self.max_rate_rad_s ** 2,
                 "weight_attitude": 1.0 / math.radians(self.max_tilt_deg) ** 2,
                 "weight_thrust": 1.0 / self.max_thrust_deviation_n ** 2}
+
+    def _repr_html_(self) -> str:
+        w = self.weights
+        rows = [("body rate p, q", f"{self.max_rate_rad_s:g} rad/s", w["weight_rate"]),
+                ("tilt n_x, n_y", f"{self.max_tilt_deg:g} deg", w["weight_attitude"]),
+                ("each thrust", f"{self.max_thrust_deviation_n:g} N", w["weight_thrust"])]
+        body = "".join(f"<tr><td>{a}</td><td>{b}</td><td>{c:.4g}</td></tr>" for a, b, c in rows)
+        return ("<table><caption>LQR weights by Bryson's rule, weight = 1 / max^2 (Bryson & Ho, "
+                "Applied Optimal Control, 1975)</caption><tr><th>deviation</th><th>largest "
+                f"acceptable</th><th>weight</th></tr>{body}</table>")
 
 
 @dataclass(frozen=True)

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import csv
 import hashlib
+import html
 import io
 import math
 from dataclasses import dataclass
@@ -100,6 +101,25 @@ class RotorFit:
                 out.append(f"{what} coefficient standard error {100 * rel:.1f} % > "
                            f"{100 * MAX_RELATIVE_SE:g} %")
         return out
+
+    def _repr_html_(self) -> str:
+        rows = [
+            ("stand file", self.file), ("SHA-256", self.sha256),
+            ("rotors", ", ".join(self.rotors)), ("operating points", str(self.n_points)),
+            ("thrust_coeff_n_s2 (fitted)",
+             f"{self.thrust_coeff_n_s2:.5g} &plusmn; {self.thrust_coeff_se_n_s2:.2g}"),
+            ("torque_per_thrust_m (fitted)",
+             f"{self.torque_per_thrust_m:.5g} &plusmn; {self.torque_per_thrust_se_m:.2g}"),
+            ("R^2 thrust, torque", f"{self.thrust_r_squared:.4f}, {self.torque_r_squared:.4f}"),
+            ("largest thrust residual (N)",
+             f"{max(abs(v) for v in self.thrust_residuals_n):.3g}"),
+        ]
+        if self.poor:
+            rows.append(("fit quality", "POOR: " + "; ".join(self.poor)))
+        body = "".join(f"<tr><td>{html.escape(a)}</td><td>{b if '&' in b else html.escape(b)}"
+                       "</td></tr>" for a, b in rows)
+        return (f"<table><caption>Rotor coefficients fitted by least squares from stand data"
+                f"</caption>{body}</table>" + fit_svg(self))
 
     def to_dict(self) -> dict:
         return {
@@ -236,3 +256,41 @@ def fit(stand: StandData, rotors: tuple[str, ...] = ()) -> RotorFit:
         thrust_n=tuple(float(v) for v in stand.thrust_n),
         torque_n_m=tuple(float(v) for v in stand.torque_n_m),
     )
+
+
+def fit_svg(f: RotorFit, width: int = 360, height: int = 220) -> str:
+    """An SVG plot of measured thrust against rotor speed with the fitted curve.
+
+    Parameters
+    ----------
+    f : RotorFit
+        The fit (with its measured points).
+    width, height : int
+        Size in pixels.
+    """
+    if not f.speed_rad_s:
+        return ""
+    pad = 40
+    w_max = max(f.speed_rad_s) * 1.05
+    t_max = max(max(f.thrust_n), f.thrust_coeff_n_s2 * w_max ** 2) * 1.05
+
+    def xy(w: float, t: float) -> tuple[float, float]:
+        return (pad + (width - 1.5 * pad) * w / w_max,
+                height - pad - (height - 1.5 * pad) * t / t_max)
+
+    curve = " ".join("{:.1f},{:.1f}".format(*xy(w_max * k / 40, f.thrust_coeff_n_s2 *
+                                                 (w_max * k / 40) ** 2)) for k in range(41))
+    dots = "".join('<circle cx="{:.1f}" cy="{:.1f}" r="2.5" fill="#1f77b4"/>'.format(*xy(w, t))
+                   for w, t in zip(f.speed_rad_s, f.thrust_n, strict=True))
+    x0, y0 = xy(0, 0)
+    x1, y1 = xy(w_max, t_max)
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
+            f'role="img" aria-label="thrust against rotor speed, measured and fitted">'
+            f'<line x1="{x0:.1f}" y1="{y0:.1f}" x2="{x1:.1f}" y2="{y0:.1f}" stroke="black"/>'
+            f'<line x1="{x0:.1f}" y1="{y0:.1f}" x2="{x0:.1f}" y2="{y1:.1f}" stroke="black"/>'
+            f'<polyline points="{curve}" fill="none" stroke="#d62728"/>{dots}'
+            f'<text x="{(x0 + x1) / 2:.0f}" y="{height - 8}" text-anchor="middle" '
+            f'font-size="11">rotor speed, 0 to {w_max:.0f} rad/s</text>'
+            f'<text x="12" y="{(y0 + y1) / 2:.0f}" font-size="11" '
+            f'transform="rotate(-90 12 {(y0 + y1) / 2:.0f})" text-anchor="middle">'
+            f'thrust, 0 to {t_max:.3g} N</text></svg>')

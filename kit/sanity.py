@@ -107,27 +107,34 @@ def rotor_warnings(design) -> list[str]:
                 out.append(f"rotor {a.name!r} and rotor {b.name!r}: propeller discs overlap by "
                            f"{ov:.3g} m (hubs {d:.4g} m apart, diameters {a.diameter_m:g} and "
                            f"{b.diameter_m:g} m); smaller propellers or a wider layout")
+    same: dict[str, list[str]] = {}  # one line for the rotors that share a finding
     for r in rotors:
         if r.diameter_m is None:
             continue
         ct = thrust_coefficient(r.thrust_coeff_n_s2, r.diameter_m, rho)
         lo, hi = CT_RANGE
         if not lo <= ct <= hi:
-            out.append(f"rotor {r.name!r}: thrust_coeff_n_s2 {r.thrust_coeff_n_s2:g} gives C_T "
-                       f"{ct:.3g} for a {r.diameter_m:g} m propeller at {rho:g} kg/m^3; usual "
-                       f"{lo:g} to {hi:g} (common practice, no source)")
+            text = (f"thrust_coeff_n_s2 {r.thrust_coeff_n_s2:g} gives C_T {ct:.3g} for a "
+                    f"{r.diameter_m:g} m propeller at {rho:g} kg/m^3; usual {lo:g} to {hi:g} "
+                    "(common practice, no source)")
+            same.setdefault(text, []).append(r.name)
         ratio = r.torque_per_thrust_m / r.diameter_m
         lo, hi = CQ_OVER_CT_RANGE
         if not lo <= ratio <= hi:
-            out.append(f"rotor {r.name!r}: torque_per_thrust_m / diameter_m = C_Q/C_T "
-                       f"{ratio:.3g}; usual {lo:g} to {hi:g} (common practice, no source)")
+            text = (f"torque_per_thrust_m / diameter_m = C_Q/C_T {ratio:.3g}; usual {lo:g} to "
+                    f"{hi:g} (common practice, no source)")
+            same.setdefault(text, []).append(r.name)
         if r.rotor_inertia_kg_m2 > 0:
             k = r.rotor_inertia_kg_m2 / r.diameter_m ** 5
             lo, hi = INERTIA_PER_D5_RANGE
             if not lo <= k <= hi:
-                out.append(f"rotor {r.name!r}: rotor_inertia_kg_m2 {r.rotor_inertia_kg_m2:g} is "
-                           f"implausible for a {r.diameter_m:g} m propeller (I/D^5 {k:.3g} "
-                           f"kg/m^3; plausible {lo:g} to {hi:g}, common practice, no source)")
+                text = (f"rotor_inertia_kg_m2 {r.rotor_inertia_kg_m2:g} is implausible for a "
+                        f"{r.diameter_m:g} m propeller (I/D^5 {k:.3g} kg/m^3; plausible {lo:g} "
+                        f"to {hi:g}, common practice, no source)")
+                same.setdefault(text, []).append(r.name)
+    for text, names in same.items():
+        label = "rotor " if len(names) == 1 else "rotors "
+        out.append(label + ", ".join(repr(n) for n in names) + ": " + text)
     return out
 
 

@@ -87,3 +87,13 @@ def test_coaxial_pair_is_not_an_overlap():
     d = design.from_dict(doc)
     assert sanity.is_coaxial_pair(d.rotors[0], d.rotors[-1])
     assert d.warnings == ()
+
+
+def test_rotors_sharing_a_finding_share_one_line():
+    doc = _doc(DESIGNS / "wheel_quad.toml")
+    for r in doc["rotor"]:
+        r["thrust_coeff_n_s2"] = 6.0e-6
+    d = design.from_dict(doc)
+    assert d.warnings == ("rotors 'front', 'left', 'rear', 'right': thrust_coeff_n_s2 6e-06 "
+                          "gives C_T 0.677 for a 0.13 m propeller at 1.225 kg/m^3; usual 0.05 to "
+                          "0.2 (common practice, no source)",)

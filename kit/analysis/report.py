@@ -240,6 +240,10 @@ class DesignReport:
                    "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
         d = self.design
         head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
+        if self.load_cases:
+            t += table(["load case", "checks passed", "of"],
+                       [(lc.label, sum(k.passed for k in lc.checks), len(lc.checks))
+                        for lc in self.load_cases], "Degraded-rotor and low-battery load cases")
         return head + checks_html(self.checks) + t
 
 

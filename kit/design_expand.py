@@ -299,7 +299,7 @@ def expand(data: dict, c: _Collector, base_dir: Path | None = None) -> Expansion
             count, angles, radius, height = geo
             names = _ring_names(c, where, ring, count, "rotor ")
             spins = ring.get("spins")
-            if not (isinstance(spins, list) and spins and all(s in SPINS for s in spins)):
+            if not (isinstance(spins, list) and spins and all(isinstance(s, str) and s in SPINS for s in spins)):
                 c.bad(f"{where}.spins", spins, "a list of 'ccw'/'cw', repeated round the ring")
                 continue
             if names is None:
@@ -432,7 +432,8 @@ def expand(data: dict, c: _Collector, base_dir: Path | None = None) -> Expansion
             where = f"failure_case[{i}]"
             _unknown(c, where, fc, ("failed", "degraded"))
             failed = fc.get("failed", [])
-            if not (isinstance(failed, list) and all(n in names_all for n in failed)
+            if not (isinstance(failed, list) and all(isinstance(n, str) and n in names_all
+                                                     for n in failed)
                     and len(set(failed)) == len(failed)):
                 c.bad(f"{where}.failed", failed, "a list of rotor names, each once: "
                       + ", ".join(map(str, names_all)))

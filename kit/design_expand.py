@@ -299,7 +299,8 @@ def expand(data: dict, c: _Collector, base_dir: Path | None = None) -> Expansion
             count, angles, radius, height = geo
             names = _ring_names(c, where, ring, count, "rotor ")
             spins = ring.get("spins")
-            if not (isinstance(spins, list) and spins and all(isinstance(s, str) and s in SPINS for s in spins)):
+            if not (isinstance(spins, list) and spins
+                    and all(isinstance(s, str) and s in SPINS for s in spins)):
                 c.bad(f"{where}.spins", spins, "a list of 'ccw'/'cw', repeated round the ring")
                 continue
             if names is None:

@@ -63,6 +63,12 @@ def test_half_thrust_rotor_stays_within_its_reduced_limit():
     assert eq.max_thrust_n[i] == pytest.approx(0.5 * d.rotors[i].max_thrust_n)
     assert eq.found and eq.thrust_n[i] <= 0.5 * d.rotors[i].max_thrust_n * (1 + 1e-9)
     assert all(c.case.startswith("degraded: front_left at 50 % thrust") for c in lc.checks)
+    # authority: the hover torque range shrinks (or stays) when one rotor's limit is halved
+    full = analyse_hover(veh)
+    assert np.all(lc.hover.torque_max_n_m <= full.torque_max_n_m + 1e-9)
+    assert np.all(lc.hover.torque_min_n_m >= full.torque_min_n_m - 1e-9)
+    assert lc.hover.torque_max_n_m[0] < full.torque_max_n_m[0] - 1e-6 or \
+        lc.hover.torque_min_n_m[0] > full.torque_min_n_m[0] + 1e-6
 
 
 def test_failure_case_and_review_fraction_in_the_file():

@@ -123,7 +123,8 @@ def analyse_degraded(design: Design, case: DegradedCase, vehicle: Vehicle | None
     mp = vehicle.mp if vehicle is not None else None
     veh = Vehicle.from_design(derated(design, scale), mp)
     res = analyse_case(veh, failed)
-    return LoadCase(case.label, "degraded", tuple(scale.items()), failed, None, (res,),
+    hover = analyse_hover(veh) if not failed else None  # torque authority with every rotor on
+    return LoadCase(case.label, "degraded", tuple(scale.items()), failed, hover, (res,),
                     _relabel(res.checks, case.label))
 
 

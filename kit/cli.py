@@ -109,7 +109,7 @@ def _check_one(path: str) -> tuple[dict, str | None]:
         d, mp, warns = _load_with_warnings(path)
     except DesignError as exc:
         return {"file": path, "design": None, "mass_properties": None, "rotors": [],
-                "errors": list(exc.problems), "warnings": []}, None
+                "errors": list(exc.problems), "warnings": [], "rotor_fits": []}, None
     record = {
         "file": path,
         "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
@@ -117,6 +117,7 @@ def _check_one(path: str) -> tuple[dict, str | None]:
         "rotors": massprops.rotor_table(d, mp),
         "errors": [],
         "warnings": warns,
+        "rotor_fits": [f.to_dict() for f in d.rotor_fits],
     }
     return record, check_summary(d, mp)
 

@@ -60,7 +60,46 @@ def check_summary(d, mp) -> str:
         )
     lines.append(f"  failure cases   {len(d.failure_cases)} listed; review sets: "
                  f"{d.review.failure_sets}")
+    lines += _shorthand_summary(d)
     return "\n".join(lines)
+
+
+def _shorthand_summary(d) -> list[str]:
+    """Lines on fitted rotors, degraded cases, battery and Bryson limits, when given."""
+    lines = []
+    for f in d.rotor_fits:
+        lines.append(f"  stand data      {f.file} (sha256 {f.sha256[:12]}), {f.n_points} points, "
+                     f"for {', '.join(f.rotors)}:")
+        lines.append(f"    thrust_coeff_n_s2 {f.thrust_coeff_n_s2:.5g} +- "
+                     f"{f.thrust_coeff_se_n_s2:.2g} (R^2 {f.thrust_r_squared:.4f}); "
+                     f"torque_per_thrust_m {f.torque_per_thrust_m:.5g} +- "
+                     f"{f.torque_per_thrust_se_m:.2g} (R^2 {f.torque_r_squared:.4f})")
+    for dc in d.degraded_cases:
+        lines.append(f"  failure case    {dc.label}")
+    if d.degraded_fraction is not None:
+        lines.append(f"  review          each rotor degraded to {d.degraded_fraction:g} of max "
+                     "thrust")
+    if d.battery is not None:
+        b = d.battery
+        lines.append(f"  battery         {b.nominal_voltage_v:g} V nominal, {b.end_voltage_v:g} V "
+                     f"at end of discharge: max thrust x {b.thrust_scale:.4g}")
+    if d.bryson is not None:
+        w = d.bryson.weights
+        lines.append(f"  LQR weights     by Bryson's rule: rate {w['weight_rate']:.4g}, attitude "
+                     f"{w['weight_attitude']:.4g}, thrust {w['weight_thrust']:.4g}")
+    return lines
+
+
+def expanded_design_text(path: str) -> str:
+    """The design file with its shorthand written out (``rotorbook check --expanded``)."""
+    import tomllib
+    from pathlib import Path
+
+    from kit.design_expand import expanded_text
+
+    p = Path(path)
+    return expanded_text(tomllib.loads(p.read_text(encoding="utf-8")), p.parent,
+                         header=f"{path} as read by rotorbook")
 
 
 def _check_one(path: str) -> tuple[dict, str | None]:
@@ -71,7 +110,7 @@ def _check_one(path: str) -> tuple[dict, str | None]:
         d, mp, warns = _load_with_warnings(path)
     except DesignError as exc:
         return {"file": path, "design": None, "mass_properties": None, "rotors": [],
-                "errors": list(exc.problems), "warnings": []}, None
+                "errors": list(exc.problems), "warnings": [], "rotor_fits": []}, None
     record = {
         "file": path,
         "design": {"name": d.name, "revision": d.revision, "sha256": d.sha256},
@@ -79,6 +118,7 @@ def _check_one(path: str) -> tuple[dict, str | None]:
         "rotors": massprops.rotor_table(d, mp),
         "errors": [],
         "warnings": warns,
+        "rotor_fits": [f.to_dict() for f in d.rotor_fits],
     }
     return record, check_summary(d, mp)
 
@@ -100,6 +140,10 @@ def cmd_check(args) -> int:
             if rec["errors"]:
                 for line in rec["errors"]:
                     print(f"{rec['file']}: {line}", file=sys.stderr)
+            elif getattr(args, "expanded", False):
+                print(expanded_design_text(rec["file"]))
+                for w in rec["warnings"]:
+                    print(f"# warning: {w}")
             else:
                 print(f"{rec['file']}: valid")
                 print(summary)
@@ -260,6 +304,9 @@ def build_parser() -> argparse.ArgumentParser:
     c = sub.add_parser("check", help="validate design files and summarise mass properties")
     c.add_argument("files", nargs="+", metavar="FILE")
     c.add_argument("--json", action="store_true", help="JSON list on stdout")
+    c.add_argument("--expanded", action="store_true",
+                   help="print each valid file with rotor types, rings, stand data and Bryson "
+                        "limits written out as plain fields")
     c.set_defaults(func=cmd_check)
 
     e = sub.add_parser("equations", help="print the derived equations for a design's structure")

@@ -18,6 +18,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from kit import design_expand
+from kit.design_expand import Battery, BrysonLimits, DegradedCase  # noqa: F401 (re-exported)
 from kit.design_rules import (  # noqa: F401 (constants re-exported for users of kit.design)
     _FIELDS,
     _GEOMETRY_FIELDS,
@@ -166,6 +168,14 @@ class Design:
     sha256: str = ""
     source: str = ""
     warnings: tuple[str, ...] = field(default=())
+    #: Rotor coefficients fitted from stand data (kit.rotorfit.RotorFit), one per file.
+    rotor_fits: tuple = ()
+    battery: Battery | None = None
+    degraded_cases: tuple[DegradedCase, ...] = ()
+    #: ``review.degraded_fraction``: each rotor degraded to this fraction, one at a time.
+    degraded_fraction: float | None = None
+    #: The largest deviations the LQR weights were made from (Bryson's rule), if given so.
+    bryson: BrysonLimits | None = None
 
     @property
     def rotor_names(self) -> tuple[str, ...]:
@@ -271,7 +281,8 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
     )
 
 
-def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Design:
+def loads(text: str, source: str = "<string>", sha256: str | None = None,
+          base_dir: str | Path | None = None) -> Design:
     """Validate a design given as TOML text; see :func:`load`.
 
     Parameters
@@ -282,6 +293,9 @@ def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Des
         Name shown in error messages.
     sha256 : str or None
         Checksum to record (default: of ``text``).
+    base_dir : str, Path or None
+        Folder that stand-data paths are relative to (default: that of ``source`` when it
+        names a file).
     """
     if sha256 is None:
         sha256 = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()
@@ -290,10 +304,11 @@ def loads(text: str, source: str = "<string>", sha256: str | None = None) -> Des
     except tomllib.TOMLDecodeError as exc:
         raise DesignError([f"TOML syntax: {exc} -> valid TOML (key = value lines, [table] and "
                            "[[array]] headers)"], path=source) from None
-    return from_dict(data, source=source, sha256=sha256)
+    return from_dict(data, source=source, sha256=sha256, base_dir=base_dir)
 
 
-def from_dict(data: Any, source: str = "<dict>", sha256: str = "") -> Design:
+def from_dict(data: Any, source: str = "<dict>", sha256: str = "",
+              base_dir: str | Path | None = None) -> Design:
     """Validate a design given as the nested dict that TOML parsing produces.
 
     Parameters
@@ -304,21 +319,42 @@ def from_dict(data: Any, source: str = "<dict>", sha256: str = "") -> Design:
         Name shown in error messages.
     sha256 : str
         Checksum to record.
+    base_dir : str, Path or None
+        Folder that stand-data paths are relative to (default: that of ``source`` when it
+        names a file).
     """
     c = _Collector()
+    if base_dir is None and source and not source.startswith("<") and Path(source).is_file():
+        base_dir = Path(source).parent
     if not isinstance(data, dict):
         raise DesignError([f"(top level): {_fmt(data)} -> a TOML document (a table)"], path=source)
+    ex = design_expand.Expansion(data=data)
     try:
-        v = _validate(data, c)
+        ex = design_expand.expand(data, c, None if base_dir is None else Path(base_dir))
+        v = _validate(ex.data, c)
         if not c.problems:
             _cross_checks(v, c)
     except (TypeError, ValueError, AttributeError, KeyError, IndexError) as exc:  # pragma: no cover
         # A shape of input the checks above did not foresee: still one clear error.
         c.note(f"(file): could not be read as a design ({type(exc).__name__}: {exc})")
     if c.problems:
-        raise DesignError(c.problems, path=source)
+        raise DesignError(design_expand.name_problems(c.problems, ex.data), path=source)
+    c.warnings = design_expand.name_problems(c.warnings, ex.data)
     design = _build(v, sha256, source, c)
-    return design
+    return _with_expansion(design, ex)
+
+
+def _with_expansion(design: Design, ex: design_expand.Expansion) -> Design:
+    """Attach what the shorthand added, and the sanity warnings (kit.sanity)."""
+    from dataclasses import replace
+
+    from kit import massprops, sanity
+
+    design = replace(design, rotor_fits=ex.fits, battery=ex.battery,
+                     degraded_cases=ex.degraded_cases, degraded_fraction=ex.degraded_fraction,
+                     bryson=ex.bryson)
+    extra = sanity.design_warnings(design, massprops.compute(design).com_m)
+    return replace(design, warnings=design.warnings + tuple(extra)) if extra else design
 
 
 def load(path: str | Path) -> Design:

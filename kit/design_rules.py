@@ -464,6 +464,12 @@ def _validate(data: dict, c: _Collector) -> dict[str, Any]:
     return out
 
 
+def _coaxial(a: dict, b: dict) -> bool:
+    """Two rotors on one hub, one above the other, spinning opposite ways (a coaxial pair)."""
+    return (a["spin"] is not None and b["spin"] is not None and a["spin"] != b["spin"]
+            and abs(a["position_m"][2] - b["position_m"][2]) > 1e-6)
+
+
 def _cross_checks(v: dict[str, Any], c: _Collector) -> None:
     """Checks that span fields: names, hubs, failure cases, what defines the mass."""
     # unique names
@@ -483,9 +489,10 @@ def _cross_checks(v: dict[str, Any], c: _Collector) -> None:
     for a in range(len(hubs)):
         for b in range(a + 1, len(hubs)):
             (i, p), (j, q) = hubs[a], hubs[b]
-            if math.dist(p[:2], q[:2]) < 1e-6:
+            if math.dist(p[:2], q[:2]) < 1e-6 and not _coaxial(v["rotors"][i], v["rotors"][j]):
                 c.bad(f"rotor[{j}].position_m", list(q),
-                      f"a hub apart from rotor[{i}] (coincident in x, y)")
+                      f"a hub apart from rotor[{i}] (coincident in x, y), or a coaxial pair "
+                      "with it (opposite spins, one above the other)")
     # parts or a full body
     body = v["body"] or {}
     full_body = all(body.get(k) is not None for k in ("mass_kg", "com_m", "inertia_kg_m2"))

@@ -85,7 +85,7 @@ def test_mixed_good_and_bad_exits_2(capsys):
     assert out.count(": valid\n") == 2  # the good files are still summarised
     lines = err.splitlines()
     assert len(lines) == 1 + 3  # one line per problem, nothing else
-    assert lines[0] == f"{bad[0]}: rotor[1].max_thrust_n: -2.0 -> a number > 0"
+    assert lines[0] == f"{bad[0]}: rotor 'r2'.max_thrust_n: -2.0 -> a number > 0"
     assert all(line.startswith(f"{bad[1]}: ") for line in lines[1:])
     assert "Traceback" not in err
 
@@ -148,7 +148,7 @@ def test_check_prints_design_warnings_once(capsys, tmp_path):
                     encoding="utf-8")
     code, out, err = run(capsys, str(path))  # no DesignWarning escapes (filterwarnings=error)
     assert code == 0 and err == ""
-    assert out.count("warning: rotor[0].rotor_inertia_kg_m2 = 0 is an idealisation") == 1
+    assert out.count("warning: rotor 'front_left'.rotor_inertia_kg_m2 = 0 is an idealisation") == 1
 
 
 def test_entry_point_in_a_subprocess():

@@ -27,7 +27,7 @@ DESIGNS = HERE.parent / "data" / "designs"
 FUZZ = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 #: A problem line: a field path, a colon, the bad value, "->", what is allowed.
-PROBLEM_LINE = re.compile(r"^[\w\[\]().+ -]+(\.[\w\[\]]+)*: .+ -> \S.*$")
+PROBLEM_LINE = re.compile(r"^[\w\[\]().+ -]+('[^']*'|\"[^\"]*\")?(\.[\w\[\]]+)*: .+ -> \S.*$")
 #: The text of the fallback for an input shape validation did not foresee (never expected).
 UNFORESEEN = "could not be read as a design"
 
@@ -151,9 +151,10 @@ def test_every_problem_reported_at_once():
     text = base_text().replace("max_thrust_n = 8.0", "max_thrust_n = -8.0")
     with pytest.raises(DesignError) as info:
         design.loads(text)
+    names = ("front_left", "front_right", "rear_right", "rear_left")
     assert [p.split(":")[0] for p in info.value.problems] == [
-        f"rotor[{i}].max_thrust_n" for i in range(4)]
-    assert "rotor[3].max_thrust_n: -8.0 -> a number > 0" in info.value.problems
+        f"rotor '{n}'.max_thrust_n" for n in names]
+    assert "rotor 'rear_left'.max_thrust_n: -8.0 -> a number > 0" in info.value.problems
 
 
 def test_not_a_table_at_top_level():
@@ -179,7 +180,7 @@ def _write(tmp_path: Path, text: str) -> Path:
 
 def test_zero_rotor_inertia_warns(tmp_path):
     text = base_text().replace("rotor_inertia_kg_m2 = 3.0e-5", "rotor_inertia_kg_m2 = 0.0", 1)
-    with pytest.warns(DesignWarning, match=r"rotor\[0\]\.rotor_inertia_kg_m2 = 0 is an "
+    with pytest.warns(DesignWarning, match=r"rotor 'front_left'\.rotor_inertia_kg_m2 = 0 is an "
                                            "idealisation"):
         d = design.load(_write(tmp_path, text))
     assert d.rotors[0].rotor_inertia_kg_m2 == 0.0
@@ -238,7 +239,7 @@ def _from_dict_or_design_error(data):
     with warnings.catch_warnings():
         warnings.simplefilter("error")  # from_dict only collects warnings; it never emits them
         try:
-            d = design.from_dict(data)
+            d = design.from_dict(data, base_dir=DESIGNS)  # stand data beside the demo files
         except DesignError as exc:
             assert exc.problems
             assert not any(UNFORESEEN in p for p in exc.problems), exc.problems

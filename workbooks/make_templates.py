@@ -92,6 +92,12 @@ def hover_nb():
         code(OPEN),
         md("## Design and mass properties"),
         code("opened"),
+        code("""
+# rotor coefficients fitted from stand data, the battery and Bryson limits, where given
+for item in (*opened.design.rotor_fits, opened.design.battery, opened.design.bryson):
+    if item is not None:
+        display(item)
+"""),
         code("panels.OverviewPanel(veh)"),
         md("## Equations\nDerived with sympy for this design's structure (rotor count, wheel, "
            "drag law); sums run over the rotors."),

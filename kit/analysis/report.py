@@ -138,6 +138,8 @@ class DesignReport:
     spin: SpinSection
     wheel: WheelStudy
     checks: tuple[checks_mod.Check, ...]
+    #: Degraded-rotor and low-battery cases (kit.analysis.loadcases.LoadCase).
+    load_cases: tuple = ()
 
     def __repr__(self) -> str:
         n_fail = sum(not c.passed for c in self.checks)
@@ -169,6 +171,16 @@ class DesignReport:
             "spin_stability": self.spin.to_dict(),
             "wheel_study": self.wheel.to_dict(),
             "checks": [c.to_dict() for c in self.checks],
+            "load_cases": [lc.to_dict() for lc in self.load_cases],
+            "rotor_fits": [f.to_dict() for f in d.rotor_fits],
+            "battery": None if d.battery is None else {
+                "nominal_voltage_v": d.battery.nominal_voltage_v,
+                "end_voltage_v": d.battery.end_voltage_v,
+                "max_thrust_scale": d.battery.thrust_scale},
+            "control_weights_from_limits": None if d.bryson is None else {
+                "max_rate_rad_s": d.bryson.max_rate_rad_s, "max_tilt_deg": d.bryson.max_tilt_deg,
+                "max_thrust_deviation_n": d.bryson.max_thrust_deviation_n,
+                **d.bryson.weights},
             "assumptions": [
                 "rotor speeds follow thrust commands at once (no rotor acceleration torque)",
                 "yaw rate is held at its equilibrium value in the reduced model",
@@ -197,6 +209,14 @@ class DesignReport:
                 f" deg, max thrust {eq.thrust_n.max():.3g} N, "
                 f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
                 f"P(sat) {p:.2g}/s")
+        for lc in self.load_cases:
+            bad = sum(not k.passed for k in lc.checks)
+            lines.append(f"    {lc.label}: {len(lc.checks) - bad} of {len(lc.checks)} checks "
+                         "passed")
+        for f in d.rotor_fits:
+            lines.append(f"  fitted from {f.file} (sha256 {f.sha256[:12]}): thrust_coeff_n_s2 "
+                         f"{f.thrust_coeff_n_s2:.4g}, torque_per_thrust_m "
+                         f"{f.torque_per_thrust_m:.4g}")
         if self.wheel.available:
             lines.append(f"  wheel: h_max {self.wheel.h_max_n_m_s:.3g} N m s, "
                          f"{len(self.wheel.flags)} flag(s)")
@@ -220,6 +240,10 @@ class DesignReport:
                    "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
         d = self.design
         head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
+        if self.load_cases:
+            t += table(["load case", "checks passed", "of"],
+                       [(lc.label, sum(k.passed for k in lc.checks), len(lc.checks))
+                        for lc in self.load_cases], "Degraded-rotor and low-battery load cases")
         return head + checks_html(self.checks) + t
 
 
@@ -252,7 +276,12 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
         checks += c.checks
     checks += spin.checks()
     checks += checks_mod.wheel_checks(study)
-    return DesignReport(design, veh, hover, cases, spin, study, tuple(checks))
+    from kit.analysis.loadcases import load_cases
+
+    extra = tuple(load_cases(design, veh))
+    for lc in extra:
+        checks += lc.checks
+    return DesignReport(design, veh, hover, cases, spin, study, tuple(checks), extra)
 
 
 def analyze_file(path: str | Path, progress=None) -> DesignReport:

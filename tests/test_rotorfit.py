@@ -1,0 +1,131 @@
+"""Stand-data fits (kit.rotorfit) against scipy.optimize.curve_fit and numpy, and on synthetic data.
+
+Check values: scipy.optimize.curve_fit (absolute_sigma=False: the covariance is scaled by the
+residual variance, the usual least-squares standard error) and numpy.polyfit on the same data;
+a synthetic stand file made from known coefficients plus seeded Gaussian noise, recovered within
+3 standard errors (common practice, no source).
+"""
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy.optimize import curve_fit
+
+from kit import design, rotorfit
+from kit.errors import DesignError
+
+ROOT = Path(__file__).resolve().parents[1]
+DESIGNS = ROOT / "data" / "designs"
+K_TRUE, KAPPA_TRUE = 8.5e-6, 0.016
+
+
+def _synthetic(seed: int, n: int = 20, sigma_t: float = 0.03, sigma_q: float = 0.0008):
+    rng = np.random.default_rng(seed)
+    w = np.linspace(300.0, 1000.0, n)
+    t = K_TRUE * w ** 2 + rng.normal(0.0, sigma_t, n)
+    q = KAPPA_TRUE * t + rng.normal(0.0, sigma_q, n)
+    return w, t, q
+
+
+def _csv(w, t, q) -> str:
+    rows = "\n".join(f"{float(a)!r},{float(b)!r},{float(c)!r}"
+                     for a, b, c in zip(w, t, q, strict=True))
+    return "# synthetic stand data (made up for a test)\nspeed_rad_s,thrust_n,torque_n_m\n" + rows
+
+
+def test_fit_equals_curve_fit_and_polyfit():
+    w, t, q = _synthetic(1)
+    f = rotorfit.fit(rotorfit.read_stand_text(_csv(w, t, q)))
+    popt, pcov = curve_fit(lambda x, k: k * x ** 2, w, t, p0=[1e-5])
+    assert f.thrust_coeff_n_s2 == pytest.approx(popt[0], rel=1e-8)
+    assert f.thrust_coeff_se_n_s2 == pytest.approx(np.sqrt(pcov[0, 0]), rel=1e-6)
+    popt, pcov = curve_fit(lambda x, kappa: kappa * x, t, q, p0=[0.01])
+    assert f.torque_per_thrust_m == pytest.approx(popt[0], rel=1e-8)
+    assert f.torque_per_thrust_se_m == pytest.approx(np.sqrt(pcov[0, 0]), rel=1e-6)
+    # numpy.polyfit with the intercept free: its slope is within a few standard errors of the
+    # through-origin slope, and its intercept is within a few of its own standard errors of 0
+    p, cov = np.polyfit(w ** 2, t, 1, cov=True)
+    assert abs(p[1]) < 3 * np.sqrt(cov[1, 1])
+    assert abs(p[0] - f.thrust_coeff_n_s2) < 3 * np.sqrt(cov[0, 0])
+    np.testing.assert_allclose(f.thrust_residuals_n, t - f.thrust_coeff_n_s2 * w ** 2)
+
+
+@pytest.mark.parametrize("seed", [2, 3, 4])
+def test_synthetic_stand_file_recovers_known_coefficients(tmp_path, seed):
+    w, t, q = _synthetic(seed)
+    path = tmp_path / "stand.csv"
+    path.write_text(_csv(w, t, q), encoding="utf-8")
+    f = rotorfit.fit(rotorfit.read_stand_file(path))
+    assert abs(f.thrust_coeff_n_s2 - K_TRUE) < 3 * f.thrust_coeff_se_n_s2
+    assert abs(f.torque_per_thrust_m - KAPPA_TRUE) < 3 * f.torque_per_thrust_se_m
+    assert f.poor == []
+    assert len(f.sha256) == 64
+
+
+def test_fitted_values_flow_into_the_design_and_are_recorded(tmp_path):
+    w, t, q = _synthetic(5)
+    (tmp_path / "stand.csv").write_text(_csv(w, t, q), encoding="utf-8")
+    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
+    text = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
+                        'stand_data = "stand.csv"\n')
+    path = tmp_path / "quad.toml"
+    path.write_text(text, encoding="utf-8")
+    d = design.load(path)
+    f = d.rotor_fits[0]
+    assert f.rotors == ("front_left", "front_right", "rear_right", "rear_left")
+    assert all(r.thrust_coeff_n_s2 == f.thrust_coeff_n_s2 for r in d.rotors)
+    assert all(r.torque_per_thrust_m == f.torque_per_thrust_m for r in d.rotors)
+    import hashlib
+
+    assert f.sha256 == hashlib.sha256((tmp_path / "stand.csv").read_bytes()).hexdigest()
+    assert f.to_dict()["fitted"] is True
+
+
+def test_poor_fit_warns(tmp_path):
+    w, _, _ = _synthetic(6)
+    scatter = np.random.default_rng(6).uniform(0.5, 1.5, w.size)  # +-50 %: a poor stand run
+    t = K_TRUE * w ** 2 * scatter
+    q = KAPPA_TRUE * t
+    (tmp_path / "stand.csv").write_text(_csv(w, t, q), encoding="utf-8")
+    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
+    text = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
+                        'stand_data = "stand.csv"\n')
+    path = tmp_path / "quad.toml"
+    path.write_text(text, encoding="utf-8")
+    d = design.from_dict(__import__("tomllib").loads(text), source=str(path))
+    assert any("stand data stand.csv: poor fit (thrust fit R^2" in w for w in d.warnings)
+
+
+@pytest.mark.parametrize("text, fragment", [
+    ("speed_rad_s,thrust_n\n1,2\n2,3\n3,4\n", "column 'torque_n_m' missing"),
+    ("speed_rad_s,thrust_n,torque_n_m,rpm\n1,2,3,4\n", "column 'rpm' -> one of"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n2,3 N,0.2\n3,4,0.3\n", "numbers only"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n", "at least 3 operating points"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n-2,3,0.2\n3,4,0.3\n", "numbers > 0"),
+])
+def test_bad_stand_text_is_one_clear_line(text, fragment):
+    with pytest.raises(rotorfit.StandDataError, match=fragment):
+        rotorfit.read_stand_text(text)
+
+
+def test_bad_stand_file_in_a_design_is_a_design_error(tmp_path):
+    (tmp_path / "stand.csv").write_text("speed_rad_s,thrust_n\n1,2\n", encoding="utf-8")
+    big = tmp_path / "big.csv"
+    big.write_text("#" * (rotorfit.MAX_STAND_BYTES + 1), encoding="utf-8")
+    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
+    for name, fragment in (("stand.csv", "column 'torque_n_m' missing"),
+                           ("big.csv", "bytes -> at most"), ("none.csv", "no such file")):
+        t = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
+                         f'stand_data = "{name}"\n')
+        path = tmp_path / "quad.toml"
+        path.write_text(t, encoding="utf-8")
+        with pytest.raises(DesignError) as info:
+            design.load(path)
+        assert any(p.startswith("rotor 'front_left'.stand_data: ") and fragment in p
+                   for p in info.value.problems), info.value.problems
+
+
+def test_demo_stand_file_says_it_is_invented():
+    head = (DESIGNS / "heavy_hex_stand.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert head.startswith("#") and "invented" in head.lower()

@@ -61,6 +61,7 @@ import numpy as np
 from kit.analysis.authority import StaticAuthority, static_authority
 from kit.analysis.vehicle import Vehicle
 from kit.design import FailureCase
+from kit.design_rules import OPERATING_POINT_RULES
 
 #: Largest spin rate searched, rad/s.
 MAX_SPIN_RAD_S = 250.0
@@ -69,9 +70,9 @@ RESIDUAL_TOL = 1e-9
 #: Largest tilt of the spin axis from body z searched (n_z >= cos of it).
 MAX_TILT_RAD = math.radians(75.0)
 #: Operating-point rules (the design's ``control.operating_point``).
-RULES = ("prefer-static", "least-effort", "least-power", "static-only")
+RULES = OPERATING_POINT_RULES
 #: The default rule.
-DEFAULT_RULE = "prefer-static"
+DEFAULT_RULE = OPERATING_POINT_RULES[0]
 #: A candidate within this fraction of the chosen one's objective is reported as runner-up.
 RUNNER_UP_FRACTION = 0.05
 #: Smallest thrust of a working rotor, as a fraction of m g / k: the rotor-momentum term
@@ -837,7 +838,7 @@ def _rank_key(c: Candidate, rule: str, best: float):
 
 
 def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
-          rule: str | None = None) -> Equilibrium:
+          rule: str | None = None, complete: bool = True) -> Equilibrium:
     """The operating point of a vehicle with the given rotors failed: every candidate, one rule.
 
     Parameters
@@ -852,6 +853,10 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
         Accepted for compatibility and ignored: the result depends on the design alone.
     rule : str or None
         One of :data:`RULES`; None takes the design's ``control.operating_point``.
+    complete : bool
+        False skips the spinning search where the rule has already chosen the static hover
+        (``prefer-static`` with positive authority): the same point, without the spinning
+        candidates and runner-up (for sweeps).
 
     Returns
     -------
@@ -906,7 +911,9 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
         else:
             if authority.static_hover:
                 add(_static(prob, obj))
-            if rule != "static-only":
+            settled = (rule == "prefer-static" and authority.positive
+                       and any(c.kind == "static" for c, _ in found))
+            if rule != "static-only" and (complete or not settled):
                 P, F, merit = _scan(prob, A, None)
                 starts: list[np.ndarray] = []
                 for i in _pick_starts(P, merit, _STARTS_PER_SENSE):

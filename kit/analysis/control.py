@@ -219,15 +219,17 @@ def _pbh_minimum(A, B, starts, span) -> float:
                 step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
         dl = step[:, 0] + 1j * step[:, 1]
         t = np.ones(lam.size)
-        for _ in range(20):
+        for _ in range(6):
             cand = lam + t * dl
             cand = cand.real + 1j * np.abs(cand.imag)  # conj(lam): the same value
             fn, gn = f_grad(cand)
             worse = fn > f
             if not np.any(worse):
                 break
-            t = np.where(worse, t / 2, t)
+            t = np.where(worse, t / 4, t)
         ok = fn <= f
+        if not np.any(ok & (fn < f - 1e-15 * np.maximum(f, 1e-300))):
+            break  # no start improves: converged to rounding
         lam = np.where(ok, cand, lam)
         f = np.where(ok, fn, f)
         g = np.where(ok[:, None], gn, g)

@@ -598,7 +598,7 @@ def _constraint_hessian(prob: _Problem, v: np.ndarray, J: np.ndarray, lam: np.nd
 
 
 def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
-                max_iter: int = 60):
+                max_iter: int = 40):
     """Newton on the KKT conditions of ``min obj(f)`` s.t. ``r(v) = 0``, ``lo <= f <= hi``.
 
     Active set on the thrust limits (a variable that blocks a step is fixed at its limit; one
@@ -704,14 +704,14 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
                 vs = vn + dc
                 if np.all(vs[3:] >= lo[3:]) and np.all(vs[3:] <= hi[3:]) and accept(vs, a):
                     vn, ok = vs, True
-        for _ in range(30):
+        for _ in range(10):
             if ok:
                 break
             a *= 0.5
             vn = v + a * d
             ok = accept(vn, a)
-        else:
-            return None
+        if not ok:
+            return None  # no acceptable step: this start does not converge
         v = vn
         if block >= 0 and a == amax:
             v[block] = hi[block] if d[block] > 0 else lo[block]

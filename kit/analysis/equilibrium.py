@@ -979,6 +979,52 @@ def _as_static(c: Candidate, v: np.ndarray, prob: _Problem, weights, have_d) -> 
     return c
 
 
+@dataclass(frozen=True, repr=False)
+class OperatingPoints:
+    """Static-hover authority and the operating point chosen, one row per case.
+
+    Attributes
+    ----------
+    equilibria : tuple of Equilibrium
+    """
+
+    equilibria: tuple
+
+    def __repr__(self) -> str:
+        return f"<OperatingPoints: {len(self.equilibria)} case(s)>"
+
+    def rows(self) -> list[tuple]:
+        out = []
+        for eq in self.equilibria:
+            a = eq.authority
+            per = a.per_axis if a is not None else np.full(4, np.nan)
+            ru = eq.runner_up
+            out.append((
+                eq.label, None if a is None else a.static_hover,
+                None if a is None else a.index, *[float(v) for v in per],
+                ("static" if eq.static else f"spinning {eq.spin_rate_rad_s:+.4g} rad/s")
+                if eq.found else "none",
+                eq.chosen_by or eq.reason,
+                None if ru is None else f"{ru.kind}, spin {ru.spin_rate_rad_s:+.4g} rad/s, "
+                f"effort {ru.effort_n2:.4g} N^2"))
+        return out
+
+    def to_dict(self) -> list[dict]:
+        keys = ("case", "static_hover_exists", "static_authority_index", "thrust_n",
+                "roll_n_m", "pitch_n_m", "yaw_n_m", "operating_point", "chosen_by",
+                "runner_up")
+        return [dict(zip(keys, r, strict=True)) for r in self.rows()]
+
+    def _repr_html_(self) -> str:
+        from kit.analysis.htmltable import table
+
+        rule = self.equilibria[0].rule if self.equilibria else DEFAULT_RULE
+        return table(["case", "static hover exists", "authority index",
+                      "thrust authority (N)", "roll (N m)", "pitch (N m)", "yaw (N m)",
+                      "operating point", f"chosen by (rule {rule})", "runner-up within 5 %"],
+                     self.rows(), "Static-hover control authority and the operating point")
+
+
 def failure_sets(veh: Vehicle) -> list[tuple[str, ...]]:
     """The failure sets named by ``review.failure_sets``, in file order."""
     names = veh.names

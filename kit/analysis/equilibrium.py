@@ -506,7 +506,7 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
 
 
 def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | None):
-    """Shrink a local grid (3 x 3 x 3 in ``log |w|``, ``n_x``, ``n_y``) around a start five
+    """Shrink a local grid (3 x 3 x 3 in ``log |w|``, ``n_x``, ``n_y``) around a start four
     times (halving its span), keeping its best point; the merit of :func:`_fit` with the rotor
     momentum of the fitted thrusts added to ``r0``. Returns ``v = (w, n_x, n_y, f)``."""
     steps = np.array([-1.0, 0.0, 1.0])
@@ -514,7 +514,7 @@ def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | No
     smax = math.sin(MAX_TILT_RAD)
     best_v, best_m = None, math.inf
     span_w, span_n = 0.25, 0.08
-    for _ in range(5):
+    for _ in range(4):
         P = np.column_stack([p[0] * np.exp(span_w * Dw), p[1] + span_n * Dx,
                              p[2] + span_n * Dy])
         P[:, 1:] = np.clip(P[:, 1:], -smax, smax)
@@ -598,7 +598,7 @@ def _constraint_hessian(prob: _Problem, v: np.ndarray, J: np.ndarray, lam: np.nd
 
 
 def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
-                max_iter: int = 40):
+                max_iter: int = 25):
     """Newton on the KKT conditions of ``min obj(f)`` s.t. ``r(v) = 0``, ``lo <= f <= hi``.
 
     Active set on the thrust limits (a variable that blocks a step is fixed at its limit; one
@@ -874,6 +874,12 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
     common = {"rule": rule, "authority": authority, "switched_off": off}
     if prob.k == 0:
         return _make(veh, failed, thrust_ratio, False, "every rotor has failed", **common)
+    if float(np.sum(veh.max_thrust_n[prob.idx])) < prob.mg:
+        return _make(veh, failed, thrust_ratio, False,
+                     "no equilibrium within the thrust limits: the working rotors' "
+                     "max_thrust_n add up to less than the weight m g "
+                     f"({np.sum(veh.max_thrust_n[prob.idx]):.4g} N < {prob.mg:.4g} N)",
+                     **common)
     weights, have_d = _power_weights(veh, prob.idx)
     obj = _Objective("power" if rule == "least-power" else "effort", weights)
     found: list[tuple[Candidate, np.ndarray]] = []
@@ -916,8 +922,12 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
             if rule != "static-only" and (complete or not settled):
                 P, F, merit = _scan(prob, A, None)
                 starts: list[np.ndarray] = []
+                slowest = float(_SCAN_SPIN_RAD_S[0] / prob.w_s)
                 for i in _pick_starts(P, merit, _STARTS_PER_SENSE):
-                    v0 = _refine(prob, A, P[i], None)
+                    # a start at the slowest spin of the grid heads for the static hover:
+                    # Newton from the grid point itself
+                    v0 = (np.r_[P[i], F[i]] if abs(P[i][0]) <= slowest * (1 + 1e-12)
+                          else _refine(prob, A, P[i], None))
                     if any(np.max(np.abs(v0[:3] - u[:3])) < 0.05 for u in starts):
                         continue  # refined into the basin of an earlier start
                     starts.append(v0)

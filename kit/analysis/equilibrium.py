@@ -623,6 +623,7 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         return np.r_[0.0, 0.0, 0.0, obj.grad(x[3:])]
 
     released = 0
+    stationary, since = None, 0  # the last stationary point before a limit was released
     for _ in range(max_iter):
         c = prob.residual(v)
         J = prob.jacobian(v)
@@ -669,8 +670,14 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
                 fixed[i] = False
                 released += 1
                 lam = lam_new
+                stationary, since = v.copy(), 0
                 continue
             return v
+        since += 1
+        if stationary is not None and since > 6:
+            # leaving the limit does not lead to another stationary point within a few steps
+            # (the thrust floor, where the rotor momentum's sqrt is steep): keep the point
+            return stationary
         # a step of at most 0.25 in w / w_s and n, and 0.5 in f / f_s (a crude trust region:
         # far from the solution the objective is flat along the family and the tangent step
         # of the quadratic model overshoots)
@@ -710,8 +717,8 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
             a *= 0.5
             vn = v + a * d
             ok = accept(vn, a)
-        if not ok:
-            return None  # no acceptable step: this start does not converge
+        if not ok:  # no acceptable step: this start does not converge
+            return stationary
         v = vn
         if block >= 0 and a == amax:
             v[block] = hi[block] if d[block] > 0 else lo[block]
@@ -719,7 +726,7 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         lam = lam_new
         if any(np.max(np.abs(v - k)) < 1e-3 for k in known):
             return None
-    return None
+    return stationary
 
 
 def _acceptable(prob: _Problem, obj: _Objective, vn: np.ndarray, a: float, ref) -> bool:

@@ -111,6 +111,8 @@ class Candidate:
     power : float
         Induced hover power by momentum theory, in W (``sum f_i^1.5`` in N^1.5 when a rotor
         diameter is missing).
+    power_in_watts : bool
+        ``power`` is in W (every working rotor has a diameter).
     """
 
     kind: str
@@ -120,6 +122,7 @@ class Candidate:
     residual: float
     effort_n2: float
     power: float
+    power_in_watts: bool = True
 
     def objective(self, rule: str) -> float:
         return self.power if rule == "least-power" else self.effort_n2
@@ -135,7 +138,9 @@ class Candidate:
     def to_dict(self) -> dict:
         return {"kind": self.kind, "spin_rate_rad_s": float(self.spin_rate_rad_s),
                 "tilt_deg": float(self.tilt_deg), "n_bar": [float(v) for v in self.n_bar],
-                "effort_n2": float(self.effort_n2), "power": float(self.power),
+                "effort_n2": float(self.effort_n2),
+                ("induced_power_w" if self.power_in_watts else "sum_thrust_1_5_n1_5"):
+                    float(self.power),
                 "max_thrust_n": float(np.max(self.thrust_n)),
                 "scaled_residual": float(self.residual)}
 
@@ -820,7 +825,7 @@ def _candidate(prob: _Problem, v: np.ndarray, power_weights, have_diameters) -> 
         kind="static" if static else "spinning", spin_rate_rad_s=float(z[0]),
         n_bar=np.array([v[1], v[2], nz]), thrust_n=f,
         residual=float(np.max(np.abs(prob.residual(v)))), effort_n2=float(fw @ fw),
-        power=power)
+        power=power, power_in_watts=bool(have_diameters))
 
 
 def _distinct(cands: list[tuple[Candidate, np.ndarray]]) -> list[tuple[Candidate, np.ndarray]]:

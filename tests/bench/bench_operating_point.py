@@ -12,14 +12,21 @@ kept in ``legacy_operating_point.py``; both run here, in this process, one after
 
 from __future__ import annotations
 
-import argparse
-import contextlib
-import dataclasses
-import sys
-import time
-from pathlib import Path
+import os
 
-import numpy as np
+# one BLAS thread, before numpy loads it: the matrices are small, and threaded BLAS on a busy
+# machine spends its time waiting (as in the sweep's workers)
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import argparse  # noqa: E402
+import contextlib  # noqa: E402
+import dataclasses  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))

@@ -69,8 +69,8 @@ def test_half_turn_symmetric_map_and_progress(symmetric_design):
     for a in (f.spin_rate_rad_s, f.h2_norm, f.saturation_probability, f.max_thrust_fraction,
               m.hover.h2_norm):
         np.testing.assert_allclose(a, a[::-1, ::-1], rtol=1e-6, atol=1e-12)
-    # the distance to uncontrollability is a Nelder-Mead minimum (control.controllability):
-    # it repeats to about 1e-5 relative only
+    # the distance to uncontrollability is an iterative minimum (control.controllability,
+    # damped Newton stopped at rounding): it repeats to about 1e-5 relative only
     np.testing.assert_allclose(f.controllability_distance, f.controllability_distance[::-1, ::-1],
                                rtol=1e-3)
     # moving the battery changes the answer (the map is not flat)

@@ -389,7 +389,7 @@ def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
     mu = np.linalg.lstsq(A @ A.T, b, rcond=None)[0]
     q, f, d = q_of(mu)
     scale = max(1.0, float(np.max(np.abs(b))))
-    for _ in range(80):
+    for _ in range(30):  # finite convergence on a feasible programme takes a few steps
         g = b - A @ f
         if np.max(np.abs(g)) <= 1e-14 * scale:
             break
@@ -511,7 +511,7 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
 
 
 def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | None):
-    """Shrink a local grid (3 x 3 x 3 in ``log |w|``, ``n_x``, ``n_y``) around a start four
+    """Shrink a local grid (3 x 3 x 3 in ``log |w|``, ``n_x``, ``n_y``) around a start three
     times (halving its span), keeping its best point; the merit of :func:`_fit` with the rotor
     momentum of the fitted thrusts added to ``r0``. Returns ``v = (w, n_x, n_y, f)``."""
     steps = np.array([-1.0, 0.0, 1.0])
@@ -519,7 +519,7 @@ def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | No
     smax = math.sin(MAX_TILT_RAD)
     best_v, best_m = None, math.inf
     span_w, span_n = 0.25, 0.08
-    for _ in range(4):
+    for _ in range(3):
         P = np.column_stack([p[0] * np.exp(span_w * Dw), p[1] + span_n * Dx,
                              p[2] + span_n * Dy])
         P[:, 1:] = np.clip(P[:, 1:], -smax, smax)

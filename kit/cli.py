@@ -203,8 +203,25 @@ def cmd_sweep(args) -> int:
     if args.points < 2 or args.span_m <= 0:
         raise OptionError("--points must be >= 2 and --span-m > 0 (offsets -span..+span m)")
     offsets = np.linspace(-args.span_m, args.span_m, args.points)
-    pmap = placement_sweep(d, args.part, offsets, offsets, tuple(args.failed),
-                           progress=_progress(f"sweep {args.part}", not args.json))
+    executor = None
+    if args.scheduler:
+        from kit.analysis.sweep import cluster_executor
+
+        try:
+            executor = cluster_executor(args.scheduler)
+        except ImportError:
+            raise OptionError("--scheduler needs dask.distributed: pip install "
+                              "'rotorbook[cluster]'") from None
+        except (OSError, TimeoutError, ValueError) as exc:
+            raise OptionError(f"--scheduler: no dask scheduler at {args.scheduler!r} ({exc})"
+                              "; give its address, e.g. tcp://host:8786") from None
+    try:
+        pmap = placement_sweep(d, args.part, offsets, offsets, tuple(args.failed),
+                               executor=executor,
+                               progress=_progress(f"sweep {args.part}", not args.json))
+    finally:
+        if executor is not None:
+            executor.shutdown()
     if args.json:
         json.dump(plain(pmap.to_dict()), sys.stdout)
         sys.stdout.write("\n")
@@ -328,6 +345,9 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--span-m", type=float, default=0.03,
                    help="offsets from -span to +span in x and y, in m (default 0.03)")
     s.add_argument("--json", action="store_true", help="the whole map as JSON")
+    s.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="run on the dask.distributed scheduler at ADDRESS (tcp://host:8786; "
+                        "needs the 'cluster' extra) instead of a local process pool")
     s.set_defaults(func=cmd_sweep)
 
     r = sub.add_parser("record", help="execute the workbooks for a design into HTML records")

@@ -30,6 +30,7 @@ from kit.design_rules import (  # noqa: F401 (constants re-exported for users of
     FAILURE_SETS,
     ISA_SEA_LEVEL_DENSITY_KG_M3,
     MAX_FILE_BYTES,
+    OPERATING_POINT_RULES,
     REVIEW_DEFAULTS,
     SHAPES,
     SPINS,
@@ -120,6 +121,7 @@ class Control:
     disturbance_torque_psd_n2_m2_s: float
     disturbance_time_constant_s: float = DEFAULT_DISTURBANCE_TIME_CONSTANT_S
     disturbance_time_constant_assumed: bool = True
+    operating_point: str = OPERATING_POINT_RULES[0]
 
 
 @dataclass(frozen=True)
@@ -272,6 +274,7 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
             disturbance_time_constant_s=tau if tau is not None
             else DEFAULT_DISTURBANCE_TIME_CONSTANT_S,
             disturbance_time_constant_assumed=tau is None,
+            operating_point=ctl.get("operating_point") or OPERATING_POINT_RULES[0],
         ),
         review=review,
         failure_cases=cases,

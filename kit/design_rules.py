@@ -24,6 +24,9 @@ AXES = ("x", "y", "z")
 SPINS = {"ccw": 1, "cw": -1}
 DRAG_LAWS = ("linear", "quadratic")
 FAILURE_SETS = ("none", "single", "pairs", "single+pairs")
+#: Rules that pick a case's operating point from its candidate equilibria
+#: (``[control] operating_point``; the first is the default).
+OPERATING_POINT_RULES = ("prefer-static", "least-effort", "least-power", "static-only")
 
 #: Review thresholds and their defaults (common practice, no source; the gyro range is
 #: 2000 deg/s, a common MEMS gyro full scale).
@@ -104,6 +107,7 @@ _FIELDS: dict[str, dict[str, tuple[str, bool]]] = {
         "weight_thrust": ("pos", True),
         "disturbance_torque_psd_n2_m2_s": ("pos", True),
         "disturbance_time_constant_s": ("pos", False),
+        "operating_point": ("str", False),
     },
     "review": {
         "min_thrust_to_weight": ("pos", False),
@@ -448,6 +452,12 @@ def _validate(data: dict, c: _Collector) -> dict[str, Any]:
     else:
         out["control"] = _read_fields(c, "control", table("control") or {}, "control") if table(
             "control") is not None else None
+        ctl = out["control"]
+        if ctl and ctl.get("operating_point") is not None and (
+                ctl["operating_point"] not in OPERATING_POINT_RULES):
+            c.bad("control.operating_point", ctl["operating_point"],
+                  "one of " + ", ".join(OPERATING_POINT_RULES))
+            ctl["operating_point"] = None
 
     rv = _read_fields(c, "review", table("review") or {}, "review")
     if rv and rv["failure_sets"] is not None and rv["failure_sets"] not in FAILURE_SETS:

@@ -1,6 +1,8 @@
 """Relaxed-hover equilibria: residuals, derived exact relations and plausibility figures."""
 
+import dataclasses
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -9,6 +11,8 @@ from hypothesis import strategies as st
 
 from kit.analysis import equilibrium as E
 from kit.analysis.vehicle import Vehicle
+from kit.design import from_dict, load
+from kit.errors import DesignError
 from kit.models import ring_design
 
 G = 9.80665  # standard gravity, CGPM 1901
@@ -151,3 +155,186 @@ def test_no_failure_case_is_the_non_spinning_hover_when_it_exists():
     _invariants(veh, eq)
     assert eq.spin_rate_rad_s == 0.0
     np.testing.assert_allclose(eq.n_bar, [0.0, 0.0, 1.0], atol=1e-15)
+
+
+# --- the operating point: complete candidate set, one rule ---------------------------------
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _mirror_y(design):
+    """The design mirrored in the x-z plane: y -> -y, every spin reversed (a mirror turns a
+    ccw rotor into a cw one), products of inertia with y negated."""
+    rotors = tuple(dataclasses.replace(r, position_m=(r.position_m[0], -r.position_m[1],
+                                                      r.position_m[2]), spin=-r.spin)
+                   for r in design.rotors)
+    body = design.body
+    J = np.array(body.inertia_kg_m2, float)
+    S = np.diag([1.0, -1.0, 1.0])
+    J = S @ J @ S
+    c = body.com_m
+    body = dataclasses.replace(body, com_m=(c[0], -c[1], c[2]),
+                               inertia_kg_m2=tuple(tuple(float(v) for v in row) for row in J))
+    return dataclasses.replace(design, rotors=rotors, body=body)
+
+
+def _check_mirrored(a, b):
+    assert a.found and b.found
+    scale = max(1.0, abs(a.spin_rate_rad_s))
+    assert b.spin_rate_rad_s == pytest.approx(-a.spin_rate_rad_s, rel=1e-9, abs=1e-9 * scale)
+    np.testing.assert_allclose(b.n_bar, a.n_bar * [1, -1, 1], rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(b.thrust_n, a.thrust_n, rtol=1e-9, atol=1e-9 * a.thrust_n.max())
+
+
+def test_mirror_symmetric_designs_give_mirrored_results():
+    # Derived relation (mirror symmetry of Euler's equation): the mirrored vehicle's operating
+    # point is the mirror image of the original's, to 1e-9 relative, for every failure set.
+    d = ring_design(n_rotors=6, mass_kg=1.5, max_thrust_n=7.0, rotor_inertia_kg_m2=4e-6,
+                    inertia_kg_m2=[[8e-3, 3e-4, 5e-4], [3e-4, 8.4e-3, -2e-4],
+                                   [5e-4, -2e-4, 1.5e-2]],
+                    failure_sets="single+pairs")
+    d = dataclasses.replace(d, body=dataclasses.replace(d.body, com_m=(0.01, 0.006, 0.0)))
+    va, vb = Vehicle.from_design(d), Vehicle.from_design(_mirror_y(d))
+    for failed, _ in E.all_cases(va):
+        _check_mirrored(E.solve(va, failed), E.solve(vb, failed))
+
+
+def test_demo_hexacopter_mirror_pairs_agree():
+    # The demo hexacopter is mirror-symmetric about its x-z plane (m1 <-> m6, m2 <-> m5,
+    # m3 <-> m4, spins reversed): mirrored failure sets give mirrored operating points.
+    veh = Vehicle.from_design(load(ROOT / "data" / "designs" / "heavy_hex.toml"))
+    mirror = {"m1": "m6", "m2": "m5", "m3": "m4", "m4": "m3", "m5": "m2", "m6": "m1"}
+    perm = [veh.names.index(mirror[n]) for n in veh.names]
+    for failed in [("m1",), ("m2",), ("m1", "m2"), ("m2", "m3"), ("m1", "m3")]:
+        a = E.solve(veh, failed)
+        b = E.solve(veh, tuple(mirror[n] for n in failed))
+        assert b.spin_rate_rad_s == pytest.approx(-a.spin_rate_rad_s, rel=1e-9)
+        np.testing.assert_allclose(b.n_bar, a.n_bar * [1, -1, 1], rtol=1e-9, atol=1e-9)
+        np.testing.assert_allclose(b.thrust_n[perm], a.thrust_n, rtol=1e-9, atol=1e-9)
+
+
+def test_result_independent_of_order_and_of_hints():
+    # The operating point is a function of the design alone: solving the cases in any order,
+    # with or without a (misleading) hint, gives identical numbers.
+    veh = Vehicle.from_design(load(ROOT / "data" / "designs" / "survey_quad.toml"))
+    cases = E.all_cases(veh)
+    first = [E.solve(veh, f, r) for f, r in cases]
+    again = [E.solve(veh, f, r, hint=(-30.0, np.array([0.3, 0.0, 0.95])))
+             for f, r in reversed(cases)][::-1]
+    for a, b in zip(first, again, strict=True):
+        assert a.spin_rate_rad_s == b.spin_rate_rad_s
+        np.testing.assert_array_equal(a.thrust_n, b.thrust_n)
+
+
+def test_candidates_are_equilibria_and_the_rule_picks_the_least():
+    veh = Vehicle.from_design(load(ROOT / "data" / "designs" / "heavy_hex.toml"))
+    for failed in [("m1",), ("m1", "m2"), ("m3", "m4")]:
+        for rule in ("least-effort", "least-power"):
+            eq = E.solve(veh, failed, rule=rule)
+            _invariants(veh, eq)
+            assert eq.rule == rule and eq.candidates
+            objective = [c.objective(rule) for c in eq.candidates]
+            chosen = [c for c in eq.candidates if c.spin_rate_rad_s == eq.spin_rate_rad_s][0]
+            assert chosen.objective(rule) <= min(objective) * (1 + 1e-9)
+            for c in eq.candidates:
+                assert c.residual <= 1e-9
+            if eq.runner_up is not None:
+                assert eq.runner_up.objective(rule) <= chosen.objective(rule) * 1.05
+
+
+def test_both_spin_senses_are_candidates():
+    # The survey quad with front_left failed has a relaxed hover in each sense (+19 and
+    # -27 rad/s); least effort picks the slower one, whatever the start of a search.
+    veh = Vehicle.from_design(load(ROOT / "data" / "designs" / "survey_quad.toml"))
+    eq = E.solve(veh, ("front_left",))
+    signs = {np.sign(c.spin_rate_rad_s) for c in eq.candidates}
+    assert signs == {1.0, -1.0}
+    assert eq.spin_rate_rad_s == min((c for c in eq.candidates),
+                                     key=lambda c: c.effort_n2).spin_rate_rad_s
+
+
+def test_intact_hexacopter_with_offset_centre_of_mass_holds_still():
+    # A hexacopter whose centre of mass sits 0.155 m from the rotor centre: the least-norm
+    # thrusts of M f = (m g, 0, 0, 0) go negative, yet a static hover within the limits
+    # exists (positive authority), so the intact vehicle must not spin.
+    d = ring_design(n_rotors=6, mass_kg=2.0, arm_m=0.35, max_thrust_n=12.0,
+                    inertia_kg_m2=(3e-2, 3e-2, 5.5e-2), rotor_inertia_kg_m2=2e-5)
+    d = dataclasses.replace(d, body=dataclasses.replace(d.body, com_m=(0.155, 0.0, 0.0)))
+    veh = Vehicle.from_design(d)
+    eq = E.solve(veh, ())
+    _invariants(veh, eq)
+    assert eq.authority.positive
+    assert eq.spin_rate_rad_s == 0.0 and eq.static
+    assert np.all(eq.thrust_n > 0)
+    assert "static hover" in eq.chosen_by
+
+
+def test_static_only_rule_and_thrust_ratio_zero():
+    # Alternating hexacopter, one rotor failed: the static hover needs the opposite rotor at
+    # 0 N (Du et al. 2015, from memory), so the static-only rule finds no equilibrium, while
+    # switching the opposite rotor off (thrust ratio 0) leaves a balanced '+'-like vehicle.
+    d = ring_design(n_rotors=6, mass_kg=1.5, max_thrust_n=7.0,
+                    inertia_kg_m2=(8e-3, 8e-3, 1.5e-2))
+    veh = Vehicle.from_design(d)
+    none = E.solve(veh, ("r0",), rule="static-only")
+    assert not none.found and "static-only" in none.reason
+    ratio = {"r1": 1.0, "r2": 1.0, "r3": 0.0, "r4": 1.0, "r5": 1.0}
+    eq = E.solve(veh, ("r0",), ratio)
+    _invariants(veh, eq)
+    assert eq.switched_off == ("r3",)
+    assert eq.thrust_n[3] == 0.0
+    assert not eq.working[3]
+    # four equal thrusts with two ccw and two cw rotors: no net yaw torque, it holds still
+    assert eq.spin_rate_rad_s == pytest.approx(0.0, abs=1e-9)
+    np.testing.assert_allclose(eq.thrust_n[[1, 2, 4, 5]], 1.5 * G / 4, rtol=1e-9)
+
+
+def test_design_file_rule_is_validated_and_used():
+    doc = {
+        "design": {"name": "rule test (invented)", "revision": "1"},
+        "body": {"mass_kg": 0.5, "com_m": [0, 0, 0],
+                 "inertia_kg_m2": [[2.5e-3, 0, 0], [0, 2.5e-3, 0], [0, 0, 4.5e-3]]},
+        "rotor": [{"name": f"r{k}", "position_m": [0.12 * math.cos(k * math.pi / 2),
+                                                   0.12 * math.sin(k * math.pi / 2), 0],
+                   "spin": "ccw" if k % 2 == 0 else "cw", "max_thrust_n": 3.5,
+                   "torque_per_thrust_m": 0.012, "thrust_coeff_n_s2": 6e-6,
+                   "rotor_inertia_kg_m2": 1e-6} for k in range(4)],
+        "aero": {"drag_law": "linear", "drag_torque_coeff": [7e-4, 7e-4, 1.5e-3]},
+        "control": {"weight_rate": 1.0, "weight_attitude": 20.0, "weight_thrust": 1.0,
+                    "disturbance_torque_psd_n2_m2_s": 5e-5, "operating_point": "least-power"},
+    }
+    veh = Vehicle.from_design(from_dict(doc))
+    assert E.solve(veh, ()).rule == "least-power"
+    doc["control"]["operating_point"] = "fastest"
+    with pytest.raises(DesignError, match="operating_point"):
+        from_dict(doc)
+
+
+@settings(max_examples=10, deadline=None)
+@given(
+    mass=st.floats(0.4, 2.0),
+    com_x=st.floats(-0.03, 0.03),
+    com_y=st.floats(-0.03, 0.03),
+    ixy=st.floats(-3e-4, 3e-4),
+    n_rotors=st.sampled_from([4, 6]),
+)
+def test_random_designs_operating_point_properties(mass, com_x, com_y, ixy, n_rotors):
+    # Invariants over random designs: every candidate is an equilibrium (scaled residual
+    # <= 1e-9), the chosen point has the least objective when the rule is least effort, and
+    # solving twice gives the same numbers.
+    jx = 5e-3 * mass
+    d = ring_design(n_rotors=n_rotors, mass_kg=mass, max_thrust_n=4.0 * mass * 4 / n_rotors,
+                    inertia_kg_m2=[[jx, ixy, 0], [ixy, jx * 1.05, 0], [0, 0, 1.8 * jx]],
+                    rotor_inertia_kg_m2=3e-6)
+    d = dataclasses.replace(d, body=dataclasses.replace(d.body, com_m=(com_x, com_y, 0.0)))
+    veh = Vehicle.from_design(d)
+    for failed in [(), ("r0",)]:
+        eq = E.solve(veh, failed, rule="least-effort")
+        if not eq.found:
+            continue
+        _invariants(veh, eq)
+        for c in eq.candidates:
+            assert c.residual <= 1e-9
+            assert eq.thrust_n @ eq.thrust_n <= c.effort_n2 * (1 + 1e-9)
+        again = E.solve(veh, failed, rule="least-effort")
+        np.testing.assert_array_equal(again.thrust_n, eq.thrust_n)

@@ -69,8 +69,8 @@ def test_half_turn_symmetric_map_and_progress(symmetric_design):
     for a in (f.spin_rate_rad_s, f.h2_norm, f.saturation_probability, f.max_thrust_fraction,
               m.hover.h2_norm):
         np.testing.assert_allclose(a, a[::-1, ::-1], rtol=1e-6, atol=1e-12)
-    # the distance to uncontrollability is a Nelder-Mead minimum (control.controllability):
-    # it repeats to about 1e-5 relative only
+    # the distance to uncontrollability is an iterative minimum (control.controllability,
+    # damped Newton stopped at rounding): it repeats to about 1e-5 relative only
     np.testing.assert_allclose(f.controllability_distance, f.controllability_distance[::-1, ::-1],
                                rtol=1e-3)
     # moving the battery changes the answer (the map is not flat)
@@ -106,3 +106,52 @@ def test_bad_inputs(quad_design):
         sweep.base_position(quad_design, "wheel")
     with pytest.raises(ValueError, match="front_left"):
         sweep.placement_sweep(quad_design, "battery", [0.0], [0.0], ("front-left",))
+
+
+def test_zero_offset_point_equals_analyze(quad_design):
+    # The operating point is a function of the design alone: the sweep's zero-offset point is
+    # the design itself, so its numbers are those of `analyze` (which once differed: -26.6
+    # against +19.1 rad/s for front_left failed, by where the search started), and they do not
+    # depend on the order in which the points are visited.
+    from kit.analysis.report import analyze
+
+    xs = np.array([0.03, -0.03, 0.0])  # zero offset visited last in its row
+    with ThreadPoolExecutor(max_workers=1) as ex:
+        m = sweep.placement_sweep(quad_design, "battery", xs, [0.0], ("front_left",),
+                                  executor=ex)
+    rep = analyze(quad_design, wheel=False)
+    case = rep.case(("front_left",))
+    f = m.failure
+    assert f.spin_rate_rad_s[0, 2] == case.eq.spin_rate_rad_s
+    assert f.saturation_probability[0, 2] == case.risk.probability_per_s
+    assert f.controllability_distance[0, 2] == case.ctl.controllability_distance
+    assert m.hover.spin_rate_rad_s[0, 2] == rep.case(()).eq.spin_rate_rad_s
+    with ThreadPoolExecutor(max_workers=1) as ex:
+        m2 = sweep.placement_sweep(quad_design, "battery", xs[::-1], [0.0], ("front_left",),
+                                   executor=ex)
+    np.testing.assert_array_equal(m2.failure.spin_rate_rad_s[0, ::-1], f.spin_rate_rad_s[0])
+
+
+def test_local_dask_cluster_gives_the_process_pool_numbers(quad_design):
+    # dask.distributed (the 'cluster' extra) runs the same row tasks: a local cluster of
+    # in-process workers must give the process pool's numbers.
+    pytest.importorskip("distributed")
+    xs = np.array([-0.02, 0.02])
+    with sweep.cluster_executor(None, n_workers=2) as ex:
+        a = sweep.placement_sweep(quad_design, "battery", xs, xs, FAILED, executor=ex)
+    b = sweep.placement_sweep(quad_design, "battery", xs, xs, FAILED)
+    for key, va in _arrays(a).items():
+        np.testing.assert_allclose(np.asarray(va, float), np.asarray(_arrays(b)[key], float),
+                                   rtol=1e-12, atol=1e-300, equal_nan=True, err_msg=key)
+
+
+def test_cli_scheduler_option_errors(tmp_path, capsys):
+    # A scheduler that does not answer: one clear line naming the option, exit 2.
+    pytest.importorskip("distributed")
+    from kit import cli
+
+    code = cli.main(["sweep", str(ROOT / "data" / "designs" / "survey_quad.toml"),
+                     "--part", "battery", "--points", "2", "--scheduler", "tcp://127.0.0.1:9"])
+    assert code == 2
+    err = capsys.readouterr().err
+    assert "--scheduler" in err and "Traceback" not in err

@@ -156,6 +156,17 @@ from kit.analysis.report import analyse_case
 cases = [analyse_case(veh, failed, ratio) for failed, ratio in all_cases(veh)]
 wb.CasesTable(cases)
 """),
+        md("## Static-hover authority and the operating point\nFor each case: whether a "
+           "non-spinning hover exists within the thrust limits, its available control authority "
+           "(Du, Quan, Cai et al. 2015: the distance from the hover point to the boundary of the "
+           "attainable thrust-and-torque set, and along each axis), the operating point the "
+           "design's rule (`[control] operating_point`) chose from every candidate "
+           "equilibrium, and the runner-up when within 5 % on the rule's objective."),
+        code("""
+from kit.analysis.equilibrium import OperatingPoints
+
+OperatingPoints(tuple(c.eq for c in cases))
+"""),
         md("## The design's failure cases in detail"),
         code("""
 for fc in opened.design.failure_cases:

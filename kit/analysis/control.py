@@ -13,8 +13,10 @@ right-hand side. LQR: ``u = -K x`` minimising
 with ``Q = diag(w_rate, w_rate, w_att, w_att)``, ``R = w_thrust I``. Controllability: rank of
 ``[B, AB, A^2B, A^3B]`` on a scaled system and the distance to uncontrollability
 ``min_{lambda in C} sigma_min([A - lambda I, B])`` (PBH test, Eising 1984), relative to
-``||[A, B]||``, minimised by BFGS with the analytic gradient of a simple singular value
-started at each eigenvalue of ``A``. H2 norm from body torques about x_B, y_B to ``(n_x, n_y)``:
+``||[A, B]||``, both on the balanced system (diagonal scaling, so the verdict does not depend
+on the units of the states), minimised by damped Newton steps (analytic gradient of a simple
+eigenvalue) started at each eigenvalue of ``A``. H2 norm from body torques about x_B, y_B to
+``(n_x, n_y)``:
 
 .. math::
 
@@ -36,7 +38,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg as sla
-from scipy.optimize import minimize
 
 from kit.analysis.equilibrium import Equilibrium
 from kit.analysis.vehicle import Vehicle
@@ -158,40 +159,116 @@ def _scales(veh: Vehicle, eq: Equilibrium) -> tuple[np.ndarray, np.ndarray]:
     return np.array([rate, rate, 1.0, 1.0]), np.full(k, veh.weight_n / k)
 
 
-def controllability(A, B) -> tuple[int, float]:
-    """Rank of the controllability matrix and relative distance to uncontrollability."""
+def _balance(A, B) -> tuple[np.ndarray, np.ndarray]:
+    """A diagonal similarity of the states (and a diagonal scaling of the inputs) that evens
+    the row and column norms of ``[[A, B], [0, 0]]`` (LAPACK's balancing, powers of 2).
+
+    Rank and the PBH test are invariant under it; the distance to uncontrollability, relative
+    to ``||[A, B]||``, then no longer depends on the units of the states (a needle-like body
+    with one tiny moment of inertia has rows 10^5 apart otherwise).
+    """
+    n, k = B.shape
+    M = np.zeros((n + k, n + k))
+    M[:n, :n] = A
+    M[:n, n:] = B
+    if not np.all(np.isfinite(M)) or not np.any(M):
+        return A, B
+    _, _, _, scale, info = sla.lapack.dgebal(M, scale=1, permute=0)
+    if info != 0 or not np.all(np.isfinite(scale)) or np.any(scale <= 0):
+        return A, B
+    sx, su = scale[:n], scale[n:]
+    return A * sx[None, :] / sx[:, None], B * su[None, :] / sx[:, None]
+
+
+def _pbh_minimum(A, B, starts, span) -> float:
+    """Smallest ``sigma_min([A - lam I, B])`` near each start (complex ``lam = x + i y``).
+
+    ``sigma_min^2 = f(lam)``, the least eigenvalue of the Hermitian
+    ``H = (A - lam I)(A - lam I)^H + B B^H``, with the gradient of a simple eigenvalue
+    ``(df/dx, df/dy) = (-2 Re u^H M u, -2 Im u^H M u)`` (``M = A - lam I``, ``u`` its
+    eigenvector) and the Hessian by differences of the gradient: damped Newton steps, every
+    start in one batched ``eigh`` per evaluation.
+    """
     n = A.shape[0]
-    C = np.hstack([np.linalg.matrix_power(A, i) @ B for i in range(n)])
+    eye = np.eye(n)
+    BB = B @ B.T
+
+    def f_grad(lam):
+        M = A[None] - lam[:, None, None] * eye
+        H = M @ np.conj(np.swapaxes(M, -1, -2)) + BB
+        w, V = np.linalg.eigh(H)
+        u = V[..., 0]
+        q = np.einsum("mi,mij,mj->m", np.conj(u), M, u)
+        return w[:, 0], np.stack([-2 * q.real, -2 * q.imag], axis=1)
+
+    lam = np.asarray(starts, complex)
+    f, g = f_grad(lam)
+    best = f.copy()
+    h = 1e-6 * span
+    for _ in range(12):
+        _, gx = f_grad(lam + h)
+        _, gy = f_grad(lam + 1j * h)
+        Hs = np.stack([(gx - g) / h, (gy - g) / h], axis=2)
+        Hs = 0.5 * (Hs + np.swapaxes(Hs, 1, 2))
+        step = np.empty_like(g)
+        for m in range(lam.size):
+            ev = np.linalg.eigvalsh(Hs[m])
+            if ev[0] > 0:
+                step[m] = -np.linalg.solve(Hs[m], g[m])
+            else:  # not convex here: a gradient step of the span's size
+                step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
+        dl = step[:, 0] + 1j * step[:, 1]
+        t = np.ones(lam.size)
+        for _ in range(6):
+            cand = lam + t * dl
+            cand = cand.real + 1j * np.abs(cand.imag)  # conj(lam): the same value
+            fn, gn = f_grad(cand)
+            worse = fn > f
+            if not np.any(worse):
+                break
+            t = np.where(worse, t / 4, t)
+        ok = fn <= f
+        if not np.any(ok & (fn < f - 1e-15 * np.maximum(f, 1e-300))):
+            break  # no start improves: converged to rounding
+        lam = np.where(ok, cand, lam)
+        f = np.where(ok, fn, f)
+        g = np.where(ok[:, None], gn, g)
+        best = np.minimum(best, f)
+        if np.all(np.abs(t * dl) <= 1e-10 * span) or np.all(np.linalg.norm(g, axis=1) <= 1e-14 * (
+                span * span)):
+            break
+    return float(math.sqrt(max(float(np.min(best)), 0.0)))
+
+
+def controllability(A, B) -> tuple[int, float]:
+    """Rank of the controllability matrix and relative distance to uncontrollability.
+
+    Both on the balanced system (:func:`_balance`), so the verdict does not depend on the
+    units or the size of the states: scaling the inertia by 10^k leaves it unchanged.
+    """
+    A, B = _balance(np.asarray(A, float), np.asarray(B, float))
+    n = A.shape[0]
+    # Krylov blocks of A / ||A|| (a change of time scale): the blocks stay of one size
+    a_norm = float(np.linalg.norm(A, 2))
+    At = A / a_norm if a_norm > 0 else A
+    blocks = [B]
+    for _ in range(n - 1):
+        blocks.append(At @ blocks[-1])
+    C = np.hstack(blocks)
     s = np.linalg.svd(C, compute_uv=False)
     rank = int(np.sum(s > s[0] * 1e-9)) if s[0] > 0 else 0
     norm = np.linalg.norm(np.hstack([A, B]), 2)
     if norm == 0:
         return 0, 0.0
-
-    def smin(z):
-        """sigma_min([A - lam I, B]) and its gradient in (Re lam, Im lam)."""
-        lam = complex(z[0], z[1])
-        M = np.hstack([A - lam * np.eye(n), B])
-        U, S, Vh = np.linalg.svd(M, full_matrices=False)
-        u, v = U[:, -1], Vh[-1].conj()[:n]
-        # d sigma = Re(u^H dM v) for a simple singular value; dM/d(Re lam) = [-I, 0],
-        # dM/d(Im lam) = [-i I, 0]
-        g = u.conj() @ v
-        return float(S[-1]), np.array([-g.real, g.imag])
-
-    best = math.inf
-    # sigma_min([A - lam I, B]) is the same at lam and conj(lam) for real A, B: search from the
-    # eigenvalues in the upper half-plane only
+    # the minimum lies near an eigenvalue of A (where A - lam I loses rank); search from the
+    # eigenvalues in the upper half-plane, conj(lam) giving the same value
     eigs = np.linalg.eigvals(A)
-    starts = []
+    starts: list[complex] = []
     for lam in eigs[eigs.imag >= -1e-12 * norm]:
         if all(abs(lam - s) > 1e-9 * norm for s in starts):
-            starts.append(lam)
-    for lam in starts:
-        z0 = np.array([lam.real, abs(lam.imag)])
-        res = minimize(smin, z0, jac=True, method="BFGS", options={"gtol": 1e-9 * norm,
-                                                                   "maxiter": 40})
-        best = min(best, smin(z0)[0], float(res.fun))
+            starts.append(complex(lam.real, abs(lam.imag)))
+    span = 0.25 * max(norm, float(np.max(np.abs(eigs))))
+    best = _pbh_minimum(A, B, starts, span)
     return rank, best / norm
 
 

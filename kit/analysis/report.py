@@ -170,6 +170,7 @@ class DesignReport:
             "cases": [c.to_dict() for c in self.cases],
             "spin_stability": self.spin.to_dict(),
             "wheel_study": self.wheel.to_dict(),
+            "operating_point_rule": d.control.operating_point,
             "checks": [c.to_dict() for c in self.checks],
             "load_cases": [lc.to_dict() for lc in self.load_cases],
             "rotor_fits": [f.to_dict() for f in d.rotor_fits],
@@ -209,6 +210,12 @@ class DesignReport:
                 f" deg, max thrust {eq.thrust_n.max():.3g} N, "
                 f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
                 f"P(sat) {p:.2g}/s")
+            if eq.authority is not None:
+                lines.append(f"      static authority {eq.authority.index:.3g}; {eq.chosen_by}")
+            if eq.runner_up is not None:
+                ru = eq.runner_up
+                lines.append(f"      runner-up within 5 %: {ru.kind}, spin "
+                             f"{ru.spin_rate_rad_s:+.3g} rad/s, effort {ru.effort_n2:.4g} N^2")
         for lc in self.load_cases:
             bad = sum(not k.passed for k in lc.checks)
             lines.append(f"    {lc.label}: {len(lc.checks) - bad} of {len(lc.checks)} checks "
@@ -235,9 +242,15 @@ class DesignReport:
                          eq.tilt_deg if eq.found else None,
                          float(eq.thrust_n.max()) if eq.found else None,
                          c.ctl.controllable, c.ctl.h2_norm,
-                         c.risk.probability_per_s if c.risk is not None else None))
+                         c.risk.probability_per_s if c.risk is not None else None,
+                         eq.authority.index if eq.authority is not None else None,
+                         eq.chosen_by or None,
+                         None if eq.runner_up is None else
+                         f"{eq.runner_up.kind}, spin {eq.runner_up.spin_rate_rad_s:+.3g} rad/s"))
         t = table(["case", "equilibrium", "spin (rad/s)", "tilt (deg)", "max thrust (N)",
-                   "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
+                   "controllable", "H2 norm", "P(sat) per s", "static authority",
+                   f"chosen by (rule {self.design.control.operating_point})",
+                   "runner-up within 5 %"], rows, "Cases")
         d = self.design
         head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
         if self.load_cases:

@@ -14,9 +14,11 @@ part and lays the results out on the grid:
     \mathbf J(d) = \sum_k \big[\mathbf J_k + m_k ((\mathbf d_k \cdot \mathbf d_k)\mathbf 1
     - \mathbf d_k \mathbf d_k^{\mathsf T})\big], \quad \mathbf d_k = \mathbf c_k(d) - \mathbf c(d).
 
-Rows of the grid (one ``y`` offset each) are the tasks handed to the executor; inside a row each
-point starts the equilibrium search from its left neighbour's solution (a warm start), so the
-numbers do not depend on the executor or on the number of workers.
+Rows of the grid (one ``y`` offset each) are the tasks handed to the executor. Each point's
+operating point is the one :func:`kit.analysis.equilibrium.solve` picks for the moved design
+alone (no continuation from a neighbour), so the zero-offset point equals ``analyze`` and the
+numbers depend neither on the order of the points nor on the executor (a process pool, or a
+dask.distributed cluster through :func:`cluster_executor`).
 
 References
 ----------
@@ -228,11 +230,11 @@ def moved(design: Design, part: str, dx_m: float, dy_m: float) -> Design:
     return replace(design, parts=parts)
 
 
-def _case(veh: Vehicle, failed, ratio, hint) -> tuple[list, tuple | None]:
-    eq = E.solve(veh, failed, thrust_ratio=ratio, hint=hint)
+def _case(veh: Vehicle, failed, ratio) -> list:
+    eq = E.solve(veh, failed, thrust_ratio=ratio, complete=False)
     nan = math.nan
     if not eq.found:
-        return [False, nan, nan, False, nan, nan, nan, nan], None
+        return [False, nan, nan, False, nan, nan, nan, nan]
     ctl = C.design_control(veh, eq)
     c = veh.design.control
     risk = R.saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
@@ -242,26 +244,86 @@ def _case(veh: Vehicle, failed, ratio, hint) -> tuple[list, tuple | None]:
            float(ctl.h2_norm) if ctl.K is not None else nan,
            float(risk.probability_per_s) if risk is not None else nan,
            float(np.max(eq.thrust_fraction))]
-    return row, (float(eq.spin_rate_rad_s), np.asarray(eq.n_bar, float).copy())
+    return row
 
 
 def _row_task(design: Design, part: str, dy_m: float, x_offsets_m: Sequence[float],
               failed: tuple[str, ...], ratio: dict | None) -> list:
-    """One grid row: ``[(com, failure_row or None, hover_row), ...]`` along x (warm-started)."""
+    """One grid row: ``[(com, failure_row or None, hover_row), ...]`` along x."""
     out = []
-    hint_f = hint_h = None
     for dx in x_offsets_m:
         d = moved(design, part, float(dx), float(dy_m))
         mp = compute(d)
         veh = Vehicle.from_design(d, mp)
-        frow = None
-        if failed:
-            frow, h = _case(veh, failed, ratio, hint_f)
-            hint_f = h if h is not None else hint_f
-        hrow, h = _case(veh, (), None, hint_h)
-        hint_h = h if h is not None else hint_h
+        frow = _case(veh, failed, ratio) if failed else None
+        hrow = _case(veh, (), None)
         out.append(([float(v) for v in mp.com_m], frow, hrow))
     return out
+
+
+class ClusterExecutor:
+    """A ``concurrent.futures`` executor on a dask.distributed cluster (the optional extra
+    ``cluster``), closing its client on :meth:`shutdown`.
+
+    Parameters
+    ----------
+    address : str or None
+        The scheduler's address (``tcp://host:8786``); None starts a local cluster of
+        ``n_workers`` threads in this process (for tests).
+    n_workers : int
+        Workers of the local cluster.
+    """
+
+    def __init__(self, address: str | None = None, n_workers: int = DEFAULT_WORKERS) -> None:
+        from distributed import Client, LocalCluster
+
+        self._cluster = None
+        if address is None:
+            self._cluster = LocalCluster(n_workers=n_workers, processes=False,
+                                         threads_per_worker=1, dashboard_address=None)
+            self.client = Client(self._cluster)
+        else:
+            self.client = Client(address, timeout=10)
+        self._ex = self.client.get_executor(pure=False)
+
+    def submit(self, fn, *args, **kwargs):
+        return self._ex.submit(fn, *args, **kwargs)
+
+    def map(self, fn, *iterables, **kwargs):
+        return self._ex.map(fn, *iterables, **kwargs)
+
+    def shutdown(self, wait: bool = True, *, cancel_futures: bool = False) -> None:
+        self._ex.shutdown(wait=wait)
+        self.client.close()
+        if self._cluster is not None:
+            self._cluster.close()
+
+    def __enter__(self) -> ClusterExecutor:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.shutdown()
+
+
+def cluster_executor(address: str | None = None,
+                     n_workers: int = DEFAULT_WORKERS) -> ClusterExecutor:
+    """An executor on the dask.distributed scheduler at ``address`` (None: a local cluster).
+
+    Parameters
+    ----------
+    address : str or None
+        Scheduler address, e.g. ``tcp://10.0.0.5:8786``.
+    n_workers : int
+        Workers of the local cluster when ``address`` is None.
+
+    Raises
+    ------
+    ImportError
+        dask.distributed is not installed (``pip install 'rotorbook[cluster]'``).
+    OSError
+        No scheduler answers at ``address``.
+    """
+    return ClusterExecutor(address, n_workers)
 
 
 def _one_blas_thread() -> None:

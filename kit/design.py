@@ -137,7 +137,7 @@ class Review:
     max_spin_fraction_of_gyro: float = 0.8
     max_saturation_probability: float = 0.01
     failure_sets: str = "single"
-    min_damping_ratio: float = 0.3
+    min_damping_ratio: float = 0.1
     min_lag_margin_s: float = 0.03
     max_height_loss_m: float = 5.0
     max_tilt_during_recovery_deg: float = 60.0

@@ -34,7 +34,7 @@ REVIEW_DEFAULTS: dict[str, Any] = {
     "max_spin_fraction_of_gyro": 0.8,
     "max_saturation_probability": 0.01,
     "failure_sets": "single",
-    "min_damping_ratio": 0.3,
+    "min_damping_ratio": 0.1,
     "min_lag_margin_s": 0.03,
     "max_height_loss_m": 5.0,
     "max_tilt_during_recovery_deg": 60.0,

@@ -750,7 +750,8 @@ class _Flight:
             dy[3:6] = model.translation_accel(q, f, par)
             dy[6:10] = 0.5 * quat_mul(q, np.r_[0.0, omega])
             dy[10:13] = model.omega_dot(omega, f, par)
-            dy[13:] = (c - y[13:]) * inv_tau
+            if any_lag:
+                dy[13:] = (c - y[13:]) * inv_tau
             return dy
 
         return rhs
@@ -758,7 +759,7 @@ class _Flight:
 
 def _fly(flight: _Flight, segments: list[_Segment], omega0, n0, f0, rtol, max_step, sample_s):
     q0 = quat_from_up(n0)
-    y = np.r_[np.zeros(6), q0, omega0, f0]
+    y = np.r_[np.zeros(6), q0, omega0, f0 if flight.any_lag else []]
     ts, ys, segs = [], [], []
     ok, message, nfev = True, "ok", 0
     for k, seg in enumerate(segments):
@@ -970,7 +971,7 @@ def _flown_result(veh, flight, segs, failed, t_fail, t_sw, tau, eq, law, t, Y, s
         W.append(w)
     cmd, raw, X, ND, W = map(np.array, (C_, RAW, X, ND, W))
     alive_s = np.array([used[k].alive for k in seg_idx])
-    F = np.where(flight.lagged, Y[:, 13:13 + N], cmd) * alive_s
+    F = (np.where(flight.lagged, Y[:, 13:13 + N], cmd) if flight.any_lag else cmd) * alive_s
     # deviation about the final operating point (for the record and the linear comparison)
     dev = np.column_stack([omega[:, 0] - law.omega_bar[-1, 0], omega[:, 1] - law.omega_bar[-1, 1],
                            ND[:, 0] - law.n_bar[-1, 0], ND[:, 1] - law.n_bar[-1, 1]])

@@ -39,6 +39,7 @@ from __future__ import annotations
 import dataclasses
 import html
 import math
+import warnings
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -611,7 +612,8 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
 
     One LQR (the design's weights and motor lag) per point of :data:`SCHEDULE_FRACTIONS`
     (:func:`_spin_up_point`); the last point is ``eq`` itself with its LQR ``ctl``. Points
-    where no stabilising LQR exists are left out.
+    where no stabilising LQR exists (or scipy's Riccati solver has to perturb the problem) are
+    left out.
 
     Parameters
     ----------
@@ -628,7 +630,13 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
     pts = []
     for frac in SCHEDULE_FRACTIONS[:-1]:
         op = _spin_up_point(veh, eq, frac)
-        c = C.design_control(veh, op, with_robustness=False)
+        with warnings.catch_warnings():
+            # a Riccati solution scipy has to perturb is not one to fly
+            warnings.simplefilter("error", RuntimeWarning)
+            try:
+                c = C.design_control(veh, op, with_robustness=False)
+            except RuntimeWarning:
+                continue
         if c.K is not None:
             pts.append((op, c))
     pts.append((eq, ctl))

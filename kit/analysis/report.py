@@ -138,6 +138,44 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
                       gains(veh, eq, ctl) if eq.found else None, note)
 
 
+def transients_html(cases) -> str:
+    """Transient summary of the simulated failure cases, worst first (an HTML table).
+
+    Parameters
+    ----------
+    cases : sequence of CaseResult
+        Analysed cases (those without a failure are left out).
+    """
+    head = ["case", "converged", "checks failed", "peak tilt (deg)", "least n_z",
+            "height lost (m)", "largest horizontal excursion (m)", "time to settle (s)",
+            "time saturated (s)", "peak p, q, r (rad/s)"]
+    rows = []
+    for c in worst_first(cases):
+        if c.transient is None:
+            rows.append((c.eq.label, "not simulated", c.failed_checks, *[None] * 7))
+            continue
+        tr = c.transient.transient
+        rows.append((c.eq.label, c.transient.converged, c.failed_checks,
+                     tr["peak_tilt_deg"],
+                     f"{tr['least_n_z']:.3g}" + (" (inverted)" if tr["inverted"] else ""),
+                     tr["height_lost_m"], tr["largest_horizontal_excursion_m"],
+                     tr["time_to_settle_s"] if math.isfinite(tr["time_to_settle_s"])
+                     else "not settled", tr["time_saturated_s"],
+                     ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])))
+    return table(head, rows, "Recovery from each failure, worst first (nonlinear, flown)")
+
+
+def worst_first(cases) -> tuple:
+    """Failure cases sorted worst first (:meth:`CaseResult.severity`).
+
+    Parameters
+    ----------
+    cases : sequence of CaseResult
+        Analysed cases.
+    """
+    return tuple(sorted((c for c in cases if c.eq.failed), key=CaseResult.severity))
+
+
 @dataclass(frozen=True, repr=False)
 class SpinSection:
     """Torque-free spin stability at the spin rates found, and each spin axis's alignment."""
@@ -191,27 +229,11 @@ class DesignReport:
     @property
     def worst_first(self) -> tuple[CaseResult, ...]:
         """Failure cases, worst first (failed checks, not converged, height lost)."""
-        return tuple(sorted((c for c in self.cases if c.eq.failed), key=CaseResult.severity))
+        return worst_first(self.cases)
 
     def transients_html(self) -> str:
         """Transient summary of every simulated failure case, worst first."""
-        head = ["case", "converged", "checks failed", "peak tilt (deg)", "least n_z",
-                "height lost (m)", "largest horizontal excursion (m)", "time to settle (s)",
-                "time saturated (s)", "peak p, q, r (rad/s)"]
-        rows = []
-        for c in self.worst_first:
-            if c.transient is None:
-                rows.append((c.eq.label, "not simulated", c.failed_checks, *[None] * 7))
-                continue
-            tr = c.transient.transient
-            rows.append((c.eq.label, c.transient.converged, c.failed_checks,
-                         tr["peak_tilt_deg"],
-                         f"{tr['least_n_z']:.3g}" + (" (inverted)" if tr["inverted"] else ""),
-                         tr["height_lost_m"], tr["largest_horizontal_excursion_m"],
-                         tr["time_to_settle_s"] if math.isfinite(tr["time_to_settle_s"])
-                         else "not settled", tr["time_saturated_s"],
-                         ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])))
-        return table(head, rows, "Recovery from each failure, worst first (nonlinear, flown)")
+        return transients_html(self.cases)
 
     def __repr__(self) -> str:
         n_fail = sum(not c.passed for c in self.checks)

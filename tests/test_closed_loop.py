@@ -79,6 +79,22 @@ def test_augmented_model_is_the_block_form(lagged, failed):
     assert np.allclose(Bda[:4], Bd) and np.allclose(Bda[4:], 0.0)
 
 
+def test_symbolic_augmented_model_has_the_block_form():
+    # derived by differentiation of (reduced rhs, lam (c - f)); the blocks are the reduced
+    # model's A and B, -diag(lam) and diag(lam), exactly (Ogata, 5th ed., sec. 3-5; from memory)
+    import sympy as sp
+
+    from kit.symbolic.reduced import augmented_model, reduced_model
+    from kit.symbolic.structure import Structure
+
+    st = Structure(3, False, "linear")
+    aug, red = augmented_model(st), reduced_model(st)
+    lam = sp.diag(*aug.bandwidth)
+    assert aug.A[:4, :4] == red.A and aug.A[:4, 4:] == red.B
+    assert aug.A[4:, :4] == sp.zeros(3, 4) and aug.A[4:, 4:] == -lam
+    assert aug.B[:4, :] == sp.zeros(4, 3) and aug.B[4:, :] == lam
+
+
 def test_zero_lag_gives_the_four_state_model(quad):
     eq = E.solve(quad, ("r0",))
     c = C.design_control(quad, eq)

@@ -16,13 +16,18 @@ body angular velocity ``omega``; with motor lag, the rotor thrusts too. The equa
       + \boldsymbol\tau_d ,
     \qquad \tau_m \dot f_i = f_{i,\mathrm{cmd}} - f_i \ \text{(optional lag)},
 
-evaluated with the generated functions ``model.translation_accel`` and ``model.omega_dot``.
-Controller (DESIGN.md, "Reduced attitude model"): ``f_cmd = f_bar - K x`` with
-``x = (p - p_bar, q - q_bar, n_x - n_bar_x, n_y - n_bar_y)``, ``n = R^T e_z``, clipped to
-``[0, f_max]``; failed rotors give no thrust from the failure on (at once, with or without lag).
-Before the failure the gain is the hover LQR of the no-failure equilibrium; ``detect_delay_s``
-after it, the relaxed-hover LQR of the failure set. Altitude is not controlled: the reduced model
-has no height channel, so the height lost while the failure is undetected stays lost.
+evaluated with the generated functions ``model.translation_accel`` and ``model.omega_dot``;
+thrusts bounded to ``[min_thrust_n, max_thrust_n]`` per rotor, failed rotors give none from the
+failure on. The flown controller (:func:`simulate_failure`, DESIGN.md "Control architecture in
+the nonlinear simulation"): height and horizontal-position loops (:class:`OuterLoop`) command
+the thrust direction ``d`` and the collective; the attitude LQR acts on
+``x = (p - p_bar, q - q_bar, n_dx - n_bar_x, n_dy - n_bar_y[, f - f_bar])`` with
+``n_d = R^T d``; after the failure and the detection delay a recovery law gain-scheduled on the
+measured spin rate takes over (:func:`recovery_schedule`). A run converges only when tilt, body
+rates, yaw rate, position, height and velocity all settle (module tolerances
+``TILT_TOL`` .. ``SPEED_TOL_M_S``); its horizon is ``HORIZON_TIME_CONSTANTS`` times the longest of
+the slowest closed-loop pole and the spin-up time constant ``J_zz / gamma_z``.
+:func:`simulate_about` (no outer loop, one LQR) is the linear-against-nonlinear comparison.
 
 References
 ----------
@@ -32,6 +37,8 @@ M. W. Mueller and R. D'Andrea, "Stability and control of a quadrocopter despite 
 loss of one, two, or three propellers", IEEE ICRA 2014, sec. IV-V (from memory).
 Hairer, Norsett & Wanner, Solving Ordinary Differential Equations I, 2nd ed., sec. II.5
 (Dormand-Prince pairs; from memory).
+W. J. Rugh, J. S. Shamma, "Research on gain scheduling", Automatica 36(10), 2000, sec. 2-3
+(linearisation-based gain scheduling; from memory).
 """
 
 from __future__ import annotations
@@ -206,11 +213,23 @@ class SimulationResult:
     deviation : ndarray (T, 4)
         ``x = (p - p_bar, q - q_bar, n_x - n_bar_x, n_y - n_bar_y)`` about that equilibrium.
     converged : bool
-        ``|p - p_bar|, |q - q_bar| < rate_tol_rad_s`` and ``|n - n_bar| < n_tol`` (x, y) over
+        Tilt, body rates, yaw rate, position, height and velocity all within ``tolerances`` over
         the last :data:`CONVERGENCE_WINDOW_S`.
     solver_ok : bool
         The integrator reached ``t_end``.
     message : str
+    tolerances : dict or None
+        Convergence tolerances used (and ``not_settled`` for runs without outer loops).
+    transient : dict or None
+        Transient summary after the failure: peak tilt, least n_z and ``inverted``, height
+        lost, largest horizontal excursion, time to settle (nan: never), time a working rotor is
+        saturated, peak rates, quantities not settled.
+    outer_loop : bool
+        Whether the height and position loops flew.
+    command_n : ndarray (T, N) or None
+        Clipped thrust commands, in N.
+    spin_about_command_rad_s : ndarray (T,) or None
+        Measured spin rate about the commanded thrust direction, in rad/s.
     """
 
     names: tuple[str, ...]

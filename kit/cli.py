@@ -175,6 +175,26 @@ def cmd_analyze(args) -> int:
     return EXIT_OK
 
 
+def cmd_gains(args) -> int:
+    from pathlib import Path
+
+    from kit.analysis.report import gains_document
+    from kit.design import load
+    from kit.fileio import write_atomic
+
+    doc = gains_document(load(args.file))
+    text = json.dumps(doc, indent=1) + "\n"
+    if args.out is None:
+        sys.stdout.write(text)
+        return EXIT_OK
+    out = Path(args.out)
+    if out.exists() and not args.force:
+        raise OptionError(f"--out: {out} exists; pass --force to replace it")
+    write_atomic(out, text)
+    print(f"gains of {len(doc['cases'])} case(s) written to {out}")
+    return EXIT_OK
+
+
 def _progress(label: str, enabled: bool):
     """A text progress bar on stderr when it is a terminal (nothing in logs and pipes)."""
     if not enabled or not sys.stderr.isatty():
@@ -387,6 +407,11 @@ def build_parser() -> argparse.ArgumentParser:
     hi.add_argument("--force", action="store_true",
                     help="add a revision even when the design name differs")
     hi.set_defaults(func=cmd_history)
+    g = sub.add_parser("gains", help="LQR gains of every case for the flight controller (JSON)")
+    g.add_argument("file", metavar="FILE")
+    g.add_argument("--out", default=None, metavar="FILE", help="output file (default: stdout)")
+    g.add_argument("--force", action="store_true", help="replace an existing output file")
+    g.set_defaults(func=cmd_gains)
 
     n = sub.add_parser("new", help="a per-design folder with the workbooks pointed at it")
     n.add_argument("dir", metavar="DIR")

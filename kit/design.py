@@ -26,6 +26,8 @@ from kit.design_rules import (  # noqa: F401 (constants re-exported for users of
     _TOP,
     AXES,
     DEFAULT_DISTURBANCE_TIME_CONSTANT_S,
+    DEFAULT_FAILURE_DETECTION_DELAY_S,
+    DEFAULT_LOOP_RATE_HZ,
     DRAG_LAWS,
     FAILURE_SETS,
     ISA_SEA_LEVEL_DENSITY_KG_M3,
@@ -86,6 +88,8 @@ class Rotor:
     rotor_inertia_kg_m2: float
     diameter_m: float | None = None
     mass_kg: float | None = None
+    motor_time_constant_s: float = 0.0
+    min_thrust_n: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -122,6 +126,9 @@ class Control:
     disturbance_time_constant_s: float = DEFAULT_DISTURBANCE_TIME_CONSTANT_S
     disturbance_time_constant_assumed: bool = True
     operating_point: str = OPERATING_POINT_RULES[0]
+    failure_detection_delay_s: float = DEFAULT_FAILURE_DETECTION_DELAY_S
+    loop_rate_hz: float = DEFAULT_LOOP_RATE_HZ
+    motor_time_constant_s: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -134,6 +141,10 @@ class Review:
     max_spin_fraction_of_gyro: float = 0.8
     max_saturation_probability: float = 0.01
     failure_sets: str = "single"
+    min_damping_ratio: float = 0.1
+    min_lag_margin_s: float = 0.03
+    max_height_loss_m: float = 5.0
+    max_tilt_during_recovery_deg: float = 60.0
     defaulted: tuple[str, ...] = ()
 
 
@@ -190,6 +201,11 @@ class Design:
 # ---------------------------------------------------------------------------------------------
 
 
+def _first(*values):
+    """The first value that is not None (a field, then its file-level default)."""
+    return next(x for x in values if x is not None)
+
+
 def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design:
     d = v["design"]
     env = v["environment"] or {}
@@ -215,6 +231,7 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
         if b is not None
         else None
     )
+    ctl = v["control"]
     rotors = tuple(
         Rotor(
             name=r["name"],
@@ -226,12 +243,14 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
             rotor_inertia_kg_m2=r["rotor_inertia_kg_m2"],
             diameter_m=r["diameter_m"],
             mass_kg=r["mass_kg"],
+            motor_time_constant_s=_first(r.get("motor_time_constant_s"),
+                                         ctl.get("motor_time_constant_s"), 0.0),
+            min_thrust_n=_first(r.get("min_thrust_n"), 0.0),
         )
         for r in v["rotors"]
     )
     a = v["aero"]
     w = v["wheel"]
-    ctl = v["control"]
     tau = ctl["disturbance_time_constant_s"]
     rv = v["review"] or {}
     defaulted = tuple(k for k in REVIEW_DEFAULTS if rv.get(k) is None)
@@ -275,6 +294,10 @@ def _build(v: dict[str, Any], sha256: str, source: str, c: _Collector) -> Design
             else DEFAULT_DISTURBANCE_TIME_CONSTANT_S,
             disturbance_time_constant_assumed=tau is None,
             operating_point=ctl.get("operating_point") or OPERATING_POINT_RULES[0],
+            failure_detection_delay_s=_first(ctl.get("failure_detection_delay_s"),
+                                             DEFAULT_FAILURE_DETECTION_DELAY_S),
+            loop_rate_hz=_first(ctl.get("loop_rate_hz"), DEFAULT_LOOP_RATE_HZ),
+            motor_time_constant_s=_first(ctl.get("motor_time_constant_s"), 0.0),
         ),
         review=review,
         failure_cases=cases,

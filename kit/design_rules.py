@@ -37,7 +37,15 @@ REVIEW_DEFAULTS: dict[str, Any] = {
     "max_spin_fraction_of_gyro": 0.8,
     "max_saturation_probability": 0.01,
     "failure_sets": "single",
+    "min_damping_ratio": 0.1,
+    "min_lag_margin_s": 0.03,
+    "max_height_loss_m": 5.0,
+    "max_tilt_during_recovery_deg": 60.0,
 }
+#: Time from a rotor failure to the recovery law taking over, s (common practice, no source).
+DEFAULT_FAILURE_DETECTION_DELAY_S = 0.05
+#: Rate of the flight controller's attitude loop, Hz (common practice, no source).
+DEFAULT_LOOP_RATE_HZ = 500.0
 #: Assumed time constant of the disturbance-torque filter, s (an assumption, marked as such).
 DEFAULT_DISTURBANCE_TIME_CONSTANT_S = 0.05
 
@@ -93,6 +101,8 @@ _FIELDS: dict[str, dict[str, tuple[str, bool]]] = {
         "rotor_inertia_kg_m2": ("nonneg", True),
         "diameter_m": ("pos", False),
         "mass_kg": ("pos", False),
+        "motor_time_constant_s": ("nonneg_quiet", False),
+        "min_thrust_n": ("nonneg_quiet", False),
     },
     "aero": {"drag_law": ("str", True), "drag_torque_coeff": ("nonneg_or_vec3", True)},
     "wheel": {
@@ -108,6 +118,9 @@ _FIELDS: dict[str, dict[str, tuple[str, bool]]] = {
         "disturbance_torque_psd_n2_m2_s": ("pos", True),
         "disturbance_time_constant_s": ("pos", False),
         "operating_point": ("str", False),
+        "motor_time_constant_s": ("nonneg_quiet", False),
+        "failure_detection_delay_s": ("nonneg_quiet", False),
+        "loop_rate_hz": ("pos", False),
     },
     "review": {
         "min_thrust_to_weight": ("pos", False),
@@ -116,6 +129,10 @@ _FIELDS: dict[str, dict[str, tuple[str, bool]]] = {
         "max_spin_fraction_of_gyro": ("fraction", False),
         "max_saturation_probability": ("fraction", False),
         "failure_sets": ("str", False),
+        "min_damping_ratio": ("fraction", False),
+        "min_lag_margin_s": ("pos", False),
+        "max_height_loss_m": ("pos", False),
+        "max_tilt_during_recovery_deg": ("pos", False),
     },
     "failure_case": {"failed": ("strlist", True), "thrust_ratio": ("ratio_table", False)},
 }
@@ -482,6 +499,11 @@ def _coaxial(a: dict, b: dict) -> bool:
 
 def _cross_checks(v: dict[str, Any], c: _Collector) -> None:
     """Checks that span fields: names, hubs, failure cases, what defines the mass."""
+    # idle thrust below the largest thrust
+    for i, r in enumerate(v["rotors"]):
+        lo, hi = r.get("min_thrust_n"), r.get("max_thrust_n")
+        if lo is not None and hi is not None and lo >= hi:
+            c.bad(f"rotor[{i}].min_thrust_n", lo, f"a number below max_thrust_n ({hi!r})")
     # unique names
     for label, items in (("part", v["parts"]), ("rotor", v["rotors"])):
         seen: dict[str, int] = {}

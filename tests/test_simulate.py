@@ -69,14 +69,18 @@ def test_linear_against_nonlinear_decay(quad):
     env = np.array([norm[(r.t >= a) & (r.t < a + period)].max() for a in starts])
     rate = -np.polyfit(starts, np.log(env), 1)[0]
     assert rate == pytest.approx(slowest, rel=0.20)
-    assert r.converged
+    # attitude, rates and spin settle; without height and position loops the vehicle drifts,
+    # so the run as a whole is honestly not converged
+    assert not {"tilt", "body rates", "yaw rate"} & set(r.tolerances["not_settled"])
     assert r.final_spin_rate_rad_s == pytest.approx(eq.spin_rate_rad_s, rel=0.01)
 
 
 def test_failure_recovery_converges(quad):
-    # the spin-up is slow (yaw drag time constant J_zz / gamma_z ~ 2.3 s), hence 15 s
-    r = SIM.simulate_failure(quad, FAILED, t_fail=0.5, detect_delay_s=0.05, t_end=15.0)
+    # the spin-up is slow (yaw drag time constant J_zz / gamma_z ~ 2.3 s): the horizon is
+    # chosen from it and the slowest pole (t_end None)
+    r = SIM.simulate_failure(quad, FAILED, t_fail=0.5, detect_delay_s=0.05)
     assert r.solver_ok and r.converged
+    assert r.t[-1] - r.t_switch_s >= 5 * 2.3
     assert r.spin_rate_error < 0.01
     assert np.all(r.peak_thrust_n <= r.max_thrust_n)
     i = [quad.names.index(n) for n in FAILED]
@@ -86,7 +90,7 @@ def test_failure_recovery_converges(quad):
     assert d["converged"] is True and "t_s" not in d
     s = r.series(max_points=300)
     json.dumps(s)
-    assert len(s["t_s"]) <= 301 and s["t_s"][-1] == pytest.approx(15.0)
+    assert len(s["t_s"]) <= 301 and s["t_s"][-1] == pytest.approx(r.t[-1])
     assert "<table" in r._repr_html_()
 
 
@@ -95,17 +99,21 @@ def test_thrust_limits_hold_when_active(quad):
     d = quad.design
     low = replace(d, rotors=tuple(replace(rt, max_thrust_n=7.0) for rt in d.rotors))
     veh = Vehicle.from_design(low, quad.mp)
-    r = SIM.simulate_failure(veh, FAILED, t_end=3.0)
+    # the direct switch to the relaxed-hover LQR (no schedule, no outer loop) asks the most
+    r = SIM.simulate_failure(veh, FAILED, t_end=3.0, outer_loop=False, recovery="switch")
     assert np.all(r.thrust_n <= 7.0) and np.all(r.thrust_n >= 0.0)
     assert np.max(r.peak_thrust_n) == 7.0  # the limit was reached and held
-    lagged = SIM.simulate_failure(veh, FAILED, t_end=3.0, motor_lag_s=0.02)
+    lagged = SIM.simulate_failure(veh, FAILED, t_end=3.0, motor_lag_s=0.02, outer_loop=False,
+                                  recovery="switch")
     assert np.all(lagged.thrust_n <= 7.0 + 1e-12) and np.all(lagged.thrust_n >= 0.0)
 
 
 def test_hover_holds(quad):
-    r = SIM.simulate_failure(quad, (), t_end=2.0, initial_disturbance=(0.2, -0.1, 0.02, 0.0))
+    r = SIM.simulate_failure(quad, (), initial_disturbance=(0.2, -0.1, 0.02, 0.0))
     assert r.converged and math.isnan(r.t_fail_s)
     assert abs(r.altitude_m[-1]) < 0.05
+    short = SIM.simulate_failure(quad, (), t_end=1.0, initial_disturbance=(0.2, -0.1, 0.2, 0.0))
+    assert not short.converged  # a horizon too short to settle is reported as such
 
 
 def test_no_equilibrium_raises(quad):

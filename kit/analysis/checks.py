@@ -74,6 +74,7 @@ def case_checks(eq, ctl, risk, review) -> list[Check]:
                            "rad/s", case))
     out.append(is_true("reduced model controllable", ctl.controllable, case))
     out.append(is_true("LQR closed loop stable", ctl.stable, case))
+    out += robustness_checks(ctl, review, case)
     p = risk.probability_per_s if risk is not None else math.nan
     out.append(at_most("saturation probability", p, review.max_saturation_probability,
                        "per s", case))
@@ -94,3 +95,30 @@ def wheel_checks(study) -> list[Check]:
         top = float(nominal.h2_ratio[-1])
         out.append(at_most("H2 ratio at +h_max, no failure", top, 1.0, "", "no failure"))
     return out
+
+
+def robustness_checks(ctl, review, case="") -> list[Check]:
+    """Least closed-loop damping ratio and lag margin against the review thresholds (a loop
+    that is only stable does not pass)."""
+    rob = getattr(ctl, "robustness", None)
+    if rob is None:
+        return [is_true("robustness figures available (stabilising LQR)", False, case)]
+    return [
+        at_least("closed-loop damping ratio", rob.damping_ratio, review.min_damping_ratio, "",
+                 case),
+        at_least("lag margin", rob.lag_margin_s, review.min_lag_margin_s, "s", case),
+    ]
+
+
+def transient_checks(sim, review, case="") -> list[Check]:
+    """Checks of the simulated recovery from a failure (a :class:`SimulationResult`)."""
+    tr = sim.transient
+    return [
+        is_true("recovery converged (tilt, rates, yaw rate, position, height, velocity)",
+                sim.converged, case),
+        is_true("never inverted during recovery", not tr["inverted"], case),
+        at_most("height lost in recovery", tr["height_lost_m"], review.max_height_loss_m, "m",
+                case),
+        at_most("peak tilt during recovery", tr["peak_tilt_deg"],
+                review.max_tilt_during_recovery_deg, "deg", case),
+    ]

@@ -14,11 +14,13 @@ from pathlib import Path
 
 from kit import __version__
 from kit.analysis import checks as checks_mod
-from kit.analysis.control import LinearControl, design_control
+from kit.analysis.control import Gains, LinearControl, design_control, gains
 from kit.analysis.equilibrium import Equilibrium, all_cases, solve
 from kit.analysis.hover import Hover, analyse_hover
 from kit.analysis.htmltable import checks_html, num, table
+from kit.analysis.montecarlo import GustMonteCarlo, gust_monte_carlo
 from kit.analysis.risk import SaturationRisk, saturation_risk
+from kit.analysis.simulate import SimulationResult, simulate_failure
 from kit.analysis.spin import (
     AXIS_NAMES,
     SpinAxisAlignment,
@@ -29,6 +31,7 @@ from kit.analysis.spin import (
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import WheelStudy, wheel_study
 from kit.design import Design, load
+from kit.errors import EquilibriumNotFound
 from kit.massprops import rotor_table
 
 SCHEMA = "rotorbook.analysis/1"
@@ -57,9 +60,23 @@ class CaseResult:
     ctl: LinearControl
     risk: SaturationRisk | None
     checks: tuple[checks_mod.Check, ...]
+    transient: SimulationResult | None = None
+    gains: Gains | None = None
+    simulation_note: str = ""
 
     def __repr__(self) -> str:
         return f"<CaseResult {self.eq.label}>"
+
+    @property
+    def failed_checks(self) -> int:
+        return sum(not k.passed for k in self.checks)
+
+    def severity(self) -> tuple:
+        """Sort key, worst first: failed checks, then not converged, then height lost."""
+        tr = self.transient.transient if self.transient is not None else None
+        lost = tr["height_lost_m"] if tr is not None else math.inf
+        conv = self.transient.converged if self.transient is not None else False
+        return (-self.failed_checks, conv, -lost)
 
     def to_dict(self) -> dict:
         d = self.eq.to_dict()
@@ -75,19 +92,88 @@ class CaseResult:
             else float(self.risk.probability_per_s),
             "saturation": None if self.risk is None else self.risk.to_dict(),
             "checks": [k.to_dict() for k in self.checks],
+            "robustness": c["robustness"],
+            "gains": None if self.gains is None else self.gains.to_dict(),
+            "transient": None if self.transient is None else self.transient.to_dict(),
+            "simulation_note": self.simulation_note,
         })
         return d
 
 
-def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None) -> CaseResult:
-    """Equilibrium, linear control, saturation risk and checks for one failure case."""
+def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
+                 simulate: bool = False) -> CaseResult:
+    """Equilibrium, linear control, saturation risk, gains and checks for one failure case.
+
+    Parameters
+    ----------
+    veh : Vehicle
+        The vehicle.
+    failed : sequence of str
+        Failed rotors.
+    thrust_ratio : dict or None
+        Fixed thrust ratios of the working rotors.
+    hint : tuple or None
+        Starting point for the equilibrium solver.
+    simulate : bool
+        For a failure case, simulate the recovery from hover
+        (:func:`kit.analysis.simulate.simulate_failure`) and add its checks.
+    """
     c = veh.design.control
     eq = solve(veh, failed, thrust_ratio, hint=hint)
     ctl = design_control(veh, eq)
+    fmin = [r.min_thrust_n for r in veh.design.rotors]
     risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
-                           c.disturbance_time_constant_s)
-    return CaseResult(eq, ctl, risk, tuple(checks_mod.case_checks(eq, ctl, risk,
-                                                                  veh.design.review)))
+                           c.disturbance_time_constant_s, min_thrust_n=fmin)
+    checks = checks_mod.case_checks(eq, ctl, risk, veh.design.review)
+    sim, note = None, ""
+    if simulate and failed:
+        try:
+            sim = simulate_failure(veh, failed, thrust_ratio=thrust_ratio)
+        except (EquilibriumNotFound, ValueError) as exc:
+            note = f"not simulated: {exc}"
+            checks.append(checks_mod.is_true("recovery simulated", False, eq.label))
+        if sim is not None:
+            checks += checks_mod.transient_checks(sim, veh.design.review, eq.label)
+    return CaseResult(eq, ctl, risk, tuple(checks), sim,
+                      gains(veh, eq, ctl) if eq.found else None, note)
+
+
+def transients_html(cases) -> str:
+    """Transient summary of the simulated failure cases, worst first (an HTML table).
+
+    Parameters
+    ----------
+    cases : sequence of CaseResult
+        Analysed cases (those without a failure are left out).
+    """
+    head = ["case", "converged", "checks failed", "peak tilt (deg)", "least n_z",
+            "height lost (m)", "largest horizontal excursion (m)", "time to settle (s)",
+            "time saturated (s)", "peak p, q, r (rad/s)"]
+    rows = []
+    for c in worst_first(cases):
+        if c.transient is None:
+            rows.append((c.eq.label, "not simulated", c.failed_checks, *[None] * 7))
+            continue
+        tr = c.transient.transient
+        rows.append((c.eq.label, c.transient.converged, c.failed_checks,
+                     tr["peak_tilt_deg"],
+                     f"{tr['least_n_z']:.3g}" + (" (inverted)" if tr["inverted"] else ""),
+                     tr["height_lost_m"], tr["largest_horizontal_excursion_m"],
+                     tr["time_to_settle_s"] if math.isfinite(tr["time_to_settle_s"])
+                     else "not settled", tr["time_saturated_s"],
+                     ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])))
+    return table(head, rows, "Recovery from each failure, worst first (nonlinear, flown)")
+
+
+def worst_first(cases) -> tuple:
+    """Failure cases sorted worst first (:meth:`CaseResult.severity`).
+
+    Parameters
+    ----------
+    cases : sequence of CaseResult
+        Analysed cases.
+    """
+    return tuple(sorted((c for c in cases if c.eq.failed), key=CaseResult.severity))
 
 
 @dataclass(frozen=True, repr=False)
@@ -140,6 +226,16 @@ class DesignReport:
     checks: tuple[checks_mod.Check, ...]
     #: Degraded-rotor and low-battery cases (kit.analysis.loadcases.LoadCase).
     load_cases: tuple = ()
+    gust: GustMonteCarlo | None = None
+
+    @property
+    def worst_first(self) -> tuple[CaseResult, ...]:
+        """Failure cases, worst first (failed checks, not converged, height lost)."""
+        return worst_first(self.cases)
+
+    def transients_html(self) -> str:
+        """Transient summary of every simulated failure case, worst first."""
+        return transients_html(self.cases)
 
     def __repr__(self) -> str:
         n_fail = sum(not c.passed for c in self.checks)
@@ -182,8 +278,18 @@ class DesignReport:
                 "max_rate_rad_s": d.bryson.max_rate_rad_s, "max_tilt_deg": d.bryson.max_tilt_deg,
                 "max_thrust_deviation_n": d.bryson.max_thrust_deviation_n,
                 **d.bryson.weights},
+            "transients_worst_first": [
+                {"case": c.eq.label, "converged": None if c.transient is None
+                 else c.transient.converged, "checks_failed": c.failed_checks,
+                 "transient": None if c.transient is None else c.transient.to_dict()["transient"]}
+                for c in self.worst_first],
+            "gust_monte_carlo": None if self.gust is None else self.gust.to_dict(),
+            "gains": [c.gains.to_dict() for c in self.cases if c.gains is not None],
             "assumptions": [
-                "rotor speeds follow thrust commands at once (no rotor acceleration torque)",
+                "rotor speeds follow thrust commands at once (no rotor acceleration torque)"
+                if not any(r.motor_time_constant_s > 0 for r in d.rotors) else
+                "rotor thrusts follow their commands through first-order lags "
+                "(motor_time_constant_s); no rotor acceleration torque",
                 "yaw rate is held at its equilibrium value in the reduced model",
                 f"body drag torque law: {d.aero.drag_law}",
                 "disturbance-torque time constant "
@@ -232,6 +338,22 @@ class DesignReport:
         for c in failed:
             lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
                          f"(limit {c.relation} {num(c.limit)} {c.unit})")
+        sims = [c for c in self.worst_first if c.transient is not None]
+        if sims:
+            lines.append("  recovery from each failure, worst first:")
+        for c in sims:
+            tr = c.transient.transient
+            settle = tr["time_to_settle_s"]
+            lines.append(
+                f"    {c.eq.label}: {'converged' if c.transient.converged else 'NOT converged'}"
+                f", peak tilt {tr['peak_tilt_deg']:.3g} deg"
+                f"{' (INVERTED)' if tr['inverted'] else ''}, height lost "
+                f"{tr['height_lost_m']:.3g} m, settle "
+                + (f"{settle:.3g} s" if math.isfinite(settle) else "never"))
+        if self.gust is not None:
+            g = self.gust
+            lines.append(f"  gust Monte-Carlo ({g.case}): nonlinear/linear crossing rate "
+                         f"{g.ratio:.3g} +- {g.standard_error_ratio:.2g}")
         return "\n".join(lines)
 
     def _repr_html_(self) -> str:
@@ -257,10 +379,12 @@ class DesignReport:
             t += table(["load case", "checks passed", "of"],
                        [(lc.label, sum(k.passed for k in lc.checks), len(lc.checks))
                         for lc in self.load_cases], "Degraded-rotor and low-battery load cases")
-        return head + checks_html(self.checks) + t
+        extra = self.transients_html() if any(c.eq.failed for c in self.cases) else ""
+        return head + checks_html(self.checks) + t + extra
 
 
-def analyze(design: Design, wheel: bool = True, executor=None, progress=None) -> DesignReport:
+def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
+            simulate: bool = True, gusts: bool = True) -> DesignReport:
     """Run every analysis of a design (hover, all cases, spin stability, wheel study, checks).
 
     Parameters
@@ -272,13 +396,17 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
         Runs the wheel study's cases in parallel when given.
     progress : callable or None
         ``progress(done, total)`` over the equilibrium cases.
+    simulate : bool
+        Simulate the recovery from every failure case (transient summary and its checks).
+    gusts : bool
+        Run the Monte-Carlo gust comparison at the no-failure operating point.
     """
     veh = Vehicle.from_design(design)
     hover = analyse_hover(veh)
     todo = all_cases(veh)
     results = []
     for i, (f, r) in enumerate(todo):
-        results.append(analyse_case(veh, f, r))
+        results.append(analyse_case(veh, f, r, simulate=simulate))
         if progress is not None:
             progress(i + 1, len(todo))
     cases = tuple(results)
@@ -294,7 +422,10 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
     extra = tuple(load_cases(design, veh))
     for lc in extra:
         checks += lc.checks
-    return DesignReport(design, veh, hover, cases, spin, study, tuple(checks), extra)
+    gust = None
+    if gusts and cases and cases[0].eq.found and cases[0].ctl.K is not None:
+        gust = gust_monte_carlo(veh, cases[0].eq, cases[0].ctl)
+    return DesignReport(design, veh, hover, cases, spin, study, tuple(checks), extra, gust)
 
 
 def analyze_file(path: str | Path, progress=None) -> DesignReport:
@@ -308,3 +439,35 @@ def analyze_file(path: str | Path, progress=None) -> DesignReport:
         ``progress(done, total)`` over the equilibrium cases.
     """
     return analyze(load(path), progress=progress)
+
+
+GAINS_SCHEMA = "rotorbook.gains/1"
+
+
+def gains_document(design: Design) -> dict:
+    """The LQR gains of every case of a design, for a flight controller (plain JSON types).
+
+    Parameters
+    ----------
+    design : Design
+        The design.
+    """
+    veh = Vehicle.from_design(design)
+    cases = []
+    for f, r in all_cases(veh):
+        c = analyse_case(veh, f, r)
+        entry = {"case": c.eq.label, "failed": list(c.eq.failed),
+                 "thrust_ratio": c.eq.thrust_ratio}
+        if c.gains is None:
+            entry["gains"] = None
+            entry["note"] = c.eq.reason if not c.eq.found else c.ctl.note
+        else:
+            entry["gains"] = c.gains.to_dict()
+        cases.append(entry)
+    return plain({
+        "schema": GAINS_SCHEMA,
+        "kit_version": __version__,
+        "design": {"name": design.name, "revision": design.revision, "sha256": design.sha256},
+        "frames": "body x forward, y left, z up along the thrust; n = world up in body axes",
+        "cases": cases,
+    })

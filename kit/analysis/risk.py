@@ -11,7 +11,8 @@ The stationary covariance ``Sigma`` solves the Lyapunov equation
     F = \begin{bmatrix} A - BK & B_d \\ 0 & -I/\tau_f \end{bmatrix}, \quad
     G = \begin{bmatrix} 0 \\ I/\tau_f \end{bmatrix}.
 
-Rotor ``i``'s thrust deviation ``u_i = -K_i x`` has variance ``sigma_i^2`` and its rate
+Rotor ``i``'s thrust deviation ``u_i = -K_i x`` (with motor lag: the thrust state ``f_i``, whose
+rate is ``(c_i - f_i) / tau_i``) has variance ``sigma_i^2`` and its rate
 ``u_i_dot = -K_i (A_cl x + B_d d)`` a finite variance ``sigma_dot_i^2`` (with unfiltered white
 noise it would not). Rice's formula gives the mean rate of crossings of a level ``a`` by a
 stationary Gaussian process,
@@ -20,9 +21,9 @@ stationary Gaussian process,
 
     \nu(a) = \frac{1}{2\pi} \frac{\sigma_{\dot u}}{\sigma_u} e^{-a^2 / 2\sigma_u^2},
 
-summed over the upper margin ``f_max - f_bar`` and the lower margin ``f_bar`` of every working
-rotor (a union bound), and ``p = 1 - exp(-nu T)`` for ``T = 1 s`` (crossings as a Poisson
-stream, good when they are rare).
+summed over the upper margin ``f_max - f_bar`` and the lower margin ``f_bar - f_min`` (idle
+thrust ``min_thrust_n``) of every working rotor (a union bound), and ``p = 1 - exp(-nu T)``
+for ``T = 1 s`` (crossings as a Poisson stream, good when they are rare).
 
 References
 ----------
@@ -92,13 +93,15 @@ def rice_rate(sigma: float, sigma_dot: float, level: float) -> float:
 def closed_loop_with_filter(ctl: LinearControl, tau_s: float):
     """Augmented closed loop (F, G) with the disturbance filter states, and the rate map."""
     Acl = ctl.A - ctl.B @ ctl.K
-    F = np.block([[Acl, ctl.Bd], [np.zeros((2, 4)), -np.eye(2) / tau_s]])
-    G = np.vstack([np.zeros((4, 2)), np.eye(2) / tau_s])
+    n = Acl.shape[0]
+    F = np.block([[Acl, ctl.Bd], [np.zeros((2, n)), -np.eye(2) / tau_s]])
+    G = np.vstack([np.zeros((n, 2)), np.eye(2) / tau_s])
     return F, G
 
 
 def saturation_risk(eq: Equilibrium, ctl: LinearControl, psd: float, tau_s: float,
-                    exposure_s: float = EXPOSURE_S) -> SaturationRisk | None:
+                    exposure_s: float = EXPOSURE_S,
+                    min_thrust_n: np.ndarray | None = None) -> SaturationRisk | None:
     """Saturation risk at an equilibrium under its LQR (None when there is no stable loop).
 
     Parameters
@@ -107,20 +110,27 @@ def saturation_risk(eq: Equilibrium, ctl: LinearControl, psd: float, tau_s: floa
         Disturbance-torque intensity S, in N^2 m^2 s (two-sided, each axis).
     tau_s : float
         Filter time constant, in s.
+    exposure_s : float
+        Exposure time of the probability, in s.
+    min_thrust_n : ndarray (N,) or None
+        Idle thrust of every rotor, in N (None: 0).
     """
     if ctl.K is None or not eq.found:
         return None
     F, G = closed_loop_with_filter(ctl, tau_s)
     Sigma = sla.solve_continuous_lyapunov(F, -psd * G @ G.T)
-    Cu = np.hstack([-ctl.K, np.zeros((ctl.K.shape[0], 2))])
-    Cdot = -ctl.K @ F[:4, :]
+    n = ctl.A.shape[0]
+    Cx = ctl.thrust_output
+    Cu = np.hstack([Cx, np.zeros((Cx.shape[0], 2))])
+    Cdot = Cx @ F[:n, :]
     var_u = np.einsum("ij,jk,ik->i", Cu, Sigma, Cu)
     var_du = np.einsum("ij,jk,ik->i", Cdot, Sigma, Cdot)
     sig = np.sqrt(np.maximum(var_u, 0.0))
     sig_dot = np.sqrt(np.maximum(var_du, 0.0))
     fbar = eq.thrust_n[eq.working]
     up = eq.max_thrust_n[eq.working] - fbar
-    lo = fbar.copy()
+    fmin = np.zeros(eq.working.size) if min_thrust_n is None else np.asarray(min_thrust_n, float)
+    lo = fbar - fmin[eq.working]
     nu = 0.0
     for s, sd, a, b in zip(sig, sig_dot, up, lo, strict=True):
         nu += rice_rate(s, sd, a) + rice_rate(s, sd, b)

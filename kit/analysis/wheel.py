@@ -17,7 +17,8 @@ passes near) a controllability degeneracy and the H2 norm spikes.
 
 Sizing at the chosen momentum ``h``: wheel speed ``h / I_w``, stored energy
 ``E = I_w w^2 / 2 = h^2 / (2 I_w)``, and the gyroscopic torque ``|omega x h e_z| <= h |omega|``
-at the largest body rate of the study (the largest equilibrium spin rate).
+at the largest body rate of the study (the largest equilibrium spin rate). With motor lag in the
+design the reduced model with motor lag (:func:`kit.analysis.control.augmented_model`) is used.
 
 References
 ----------
@@ -142,10 +143,10 @@ def momentum_grid(h_max: float, per_side: int = 10, decades: float = 2.0) -> np.
 def _h2_fixed(veh_h: Vehicle, eq, K0) -> float:
     if K0 is None or not eq.found:
         return math.nan
-    A, B, Bd = ctl_mod.reduced_model(veh_h, eq)
-    if B.shape[1] != K0.shape[0] or not np.all(np.isfinite(A)):
+    A, B, Bd = ctl_mod.augmented_model(veh_h, eq)
+    if B.shape[1] != K0.shape[0] or K0.shape[1] != A.shape[0] or not np.all(np.isfinite(A)):
         return math.nan
-    C = np.zeros((2, 4))
+    C = np.zeros((2, A.shape[0]))
     C[0, 2] = C[1, 3] = 1.0
     return ctl_mod.h2_norm(A - B @ K0, Bd, C)
 
@@ -162,7 +163,7 @@ def wheel_curve(veh: Vehicle, failed=(), thrust_ratio=None, h_grid=None) -> Whee
     i0 = int(np.argmin(np.abs(h_grid)))
     base = veh.with_wheel_momentum(h_grid[i0])
     eq0 = eq_mod.solve(base, failed, thrust_ratio)
-    c0 = ctl_mod.design_control(base, eq0)
+    c0 = ctl_mod.design_control(base, eq0, with_robustness=False)
     K0 = c0.K
     results = {i0: (eq0, c0)}
     for order in (range(i0 + 1, n), range(i0 - 1, -1, -1)):
@@ -171,7 +172,7 @@ def wheel_curve(veh: Vehicle, failed=(), thrust_ratio=None, h_grid=None) -> Whee
             vh = veh.with_wheel_momentum(h_grid[i])
             hint = (prev.spin_rate_rad_s, prev.n_bar) if prev.found else None
             eq = eq_mod.solve(vh, failed, thrust_ratio, hint=hint)
-            results[i] = (eq, ctl_mod.design_control(vh, eq))
+            results[i] = (eq, ctl_mod.design_control(vh, eq, with_robustness=False))
             prev = eq if eq.found else prev
     for i, (eq, c) in results.items():
         h2[i] = c.h2_norm

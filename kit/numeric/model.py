@@ -48,6 +48,9 @@ class Model:
         ``reduced_rhs(xr, f, par) -> (..., 4)`` with ``xr = (p, q, r, nx, ny)``, r held.
     reduced_AB : callable
         ``reduced_AB(xr, f, par) -> (A (..., 4, 4), B (..., 4, N))``.
+    augmented_AB : callable
+        ``augmented_AB(xr, f, lam, par) -> (A (..., 4+N, 4+N), B (..., 4+N, N))``: the reduced
+        model with first-order motor lag, ``lam`` = motor bandwidths ``1 / tau`` in 1/s.
     path : Path or None
         The cached module file.
     """
@@ -62,6 +65,7 @@ class Model:
     eq_jacobian: Callable
     reduced_rhs: Callable
     reduced_AB: Callable
+    augmented_AB: Callable
     path: Path | None
     module: ModuleType
 
@@ -102,6 +106,7 @@ def _from_module(structure: Structure, module: ModuleType) -> Model:
         eq_jacobian=module.eq_jacobian,
         reduced_rhs=module.reduced_rhs,
         reduced_AB=module.reduced_AB,
+        augmented_AB=module.augmented_AB,
         path=Path(path) if path else None,
         module=module,
     )

@@ -23,7 +23,7 @@ import sympy as sp
 from sympy.printing.numpy import NumPyPrinter
 
 from . import cache
-from .reduced import reduced_model
+from .reduced import augmented_model, reduced_model
 from .rigid_body import InvNorm3, Norm3, equilibrium, rigid_body, symbols_for
 from .structure import Structure
 
@@ -70,6 +70,7 @@ def function_specs(structure: Structure) -> list[FunctionSpec]:
     rb = rigid_body(structure)
     eq = equilibrium(structure)
     red = reduced_model(structure)
+    aug = augmented_model(structure)
     N = structure.n_rotors
     par = Arg(
         "par",
@@ -86,6 +87,8 @@ def function_specs(structure: Structure) -> list[FunctionSpec]:
                "Attitude quaternion, body to world, scalar first (any non-zero norm).")
     z = Arg("z", eq.unknowns, ("w [rad/s]", "nx [1]", "ny [1]") + f.labels,
             "Equilibrium unknowns; omega = w n, nz = +sqrt(1 - nx^2 - ny^2).")
+    lam = Arg("lam", aug.bandwidth, tuple(f"lam_{i} [1/s]" for i in range(N)),
+              "Motor bandwidths 1 / motor_time_constant_s.")
     p, q, r = sym.omega
     xr = Arg("xr", (p, q, r, sym.n[0], sym.n[1]),
              ("p [rad/s]", "q [rad/s]", "r [rad/s] (held)", "nx [1]", "ny [1]"),
@@ -117,6 +120,11 @@ def function_specs(structure: Structure) -> list[FunctionSpec]:
                      (("A", red.A, (4, 4), "d rhs / d (p, q, nx, ny)"),
                       ("B", red.B, (4, N), "d rhs / d f [per N]")),
                      "Jacobians A and B of the reduced model."),
+        FunctionSpec("augmented_AB", (xr, f, lam, par),
+                     (("A", aug.A, (4 + N, 4 + N), "d rhs / d (p, q, nx, ny, f)"),
+                      ("B", aug.B, (4 + N, N), "d rhs / d (commanded f) [per N]")),
+                     "Jacobians of the reduced model with first-order motor lag "
+                     "(thrusts as states, commanded thrusts as inputs)."),
     ]
 
 

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import sympy as sp
 
-from .reduced import reduced_model
+from .reduced import augmented_model, reduced_model
 from .rigid_body import equilibrium, rigid_body, symbols_for
 from .structure import Structure
 
@@ -66,6 +66,9 @@ def snapshot_text(structure: Structure) -> str:
     lines += _matrix_lines("reduced_rhs", red.rhs)
     lines += _matrix_lines("A", red.A)
     lines += _matrix_lines("B", red.B)
+    aug = augmented_model(structure)
+    lines += _matrix_lines("A_motor_lag", aug.A)
+    lines += _matrix_lines("B_motor_lag", aug.B)
     return "\n".join(lines) + "\n"
 
 

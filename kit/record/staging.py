@@ -84,13 +84,19 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
-def _read_owner(path: Path) -> dict:
+def _parse_owner(data: bytes) -> dict:
     try:
-        text = path.read_text(encoding="utf-8")
-        owner = json.loads(text) if text.strip() else {}
-    except (OSError, ValueError):
+        owner = json.loads(data.decode("utf-8")) if data.strip() else {}
+    except ValueError:
         return {}
     return owner if isinstance(owner, dict) else {}
+
+
+def _read_owner(path: Path) -> dict:
+    try:
+        return _parse_owner(path.read_bytes()[:4096])
+    except OSError:
+        return {}
 
 
 def _oserror_line(exc: OSError, folder: Path) -> str:
@@ -237,18 +243,22 @@ class RecordFolder:
                               "it is replaced as a whole -> name a sub-folder, e.g. records")
         read_folder(self.folder)  # a file, or a folder of other things: refused before locking
 
-    def _owner(self, fd: int) -> None:
-        stale = self._previous_owner
-        if stale.get("pid") and stale.get("pid") != os.getpid() \
-                and not _pid_alive(int(stale["pid"])):
-            self.notes.append(f"a previous run into {str(self.shown)!r} (pid {stale['pid']}, "
-                              f"started {stale.get('started', '?')}) stopped without "
-                              "finishing; what it left was removed and its records were not "
-                              "kept")
-        text = json.dumps({"pid": os.getpid(), "started": _dt.datetime.now(_dt.UTC)
-                           .isoformat(timespec="seconds"), "folder": str(self.folder)})
-        os.ftruncate(fd, 0)
-        os.pwrite(fd, text.encode("utf-8"), 0)
+    def _take_ownership(self, lp: Path) -> None:
+        """Under the lock: note a previous owner that died, then write this run's pid."""
+        with open(lp, "r+b") as fh:
+            stale = _parse_owner(fh.read(4096))
+            pid = stale.get("pid")
+            if isinstance(pid, int) and pid != os.getpid() and not _pid_alive(pid):
+                self.notes.append(f"a previous run into {str(self.shown)!r} (pid {pid}, "
+                                  f"started {stale.get('started', '?')}) stopped without "
+                                  "finishing; what it left was removed and its records were "
+                                  "not kept")
+            fh.seek(0)
+            fh.truncate()
+            fh.write(json.dumps({"pid": os.getpid(), "started": _dt.datetime.now(_dt.UTC)
+                                 .isoformat(timespec="seconds"),
+                                 "folder": str(self.folder)}).encode("utf-8"))
+            fh.flush()
 
     def __enter__(self) -> RecordFolder:
         from filelock import FileLock, Timeout
@@ -257,8 +267,7 @@ class RecordFolder:
         lp = lock_path(self.folder)
         try:
             self.folder.parent.mkdir(parents=True, exist_ok=True)
-            self._previous_owner = {}
-            lock = FileLock(lp, timeout=0, on_acquired=self._owner_hook)
+            lock = FileLock(lp, timeout=0)
             try:
                 lock.acquire(timeout=-1 if self.wait else 0)
             except Timeout:
@@ -273,20 +282,12 @@ class RecordFolder:
             raise RecordError(_oserror_line(exc, self.shown)) from None
         self._lock = lock
         try:
+            self._take_ownership(lp)
             self._recover()
         except OSError as exc:
             self._release()
             raise RecordError(_oserror_line(exc, self.shown)) from None
         return self
-
-    def _owner_hook(self, fd: int) -> None:
-        try:
-            self._previous_owner = json.loads(os.pread(fd, 4096, 0).decode("utf-8") or "{}")
-        except (OSError, ValueError):
-            self._previous_owner = {}
-        if not isinstance(self._previous_owner, dict):
-            self._previous_owner = {}
-        self._owner(fd)
 
     def _recover(self) -> None:
         """Undo what a run that died left: a half swap, staging folders, an old set."""

@@ -498,29 +498,37 @@ def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str |
     # one writer per folder; the set is written into a staging folder and swapped in whole
     with _ex.sigterm_unwinds(), RecordFolder(out, wait=wait) as folder:
         stage = folder.prepare(d, chosen, force)
-        kernel = _ex.Kernel(kernel_name)  # RecordError for a kernelspec that is not installed
-        date = utc_date()
-        commit = git_commit()
-        keep = _ex.design_ids(design_path)
-        records = []
-        with kernel:
-            for name, (path, template) in templates.items():
-                nb = _ex.inject_parameters(template, design_path)
-                failure = _ex.execute(nb, kernel, cwd=path.parent, timeout=timeout)
-                _ex.normalise(nb, keep=keep)
-                page, checks = render_record(nb, design=d, workbook=name, date=date,
-                                             failure=failure, commit=commit)
-                write_atomic(stage / f"{name}.ipynb", nbformat.writes(nb) + "\n")
-                write_atomic(stage / f"{name}.html", page)
-                records.append(WorkbookRecord(
-                    name=name, html_path=out / f"{name}.html",
-                    notebook_path=out / f"{name}.ipynb", failure=failure,
-                    checks_total=len(checks), checks_failed=sum(not c["passed"] for c in checks),
-                    external=tuple(external_references(page))))
-        write_atomic(stage / "index.html", render_index(stage, d, date, records))
+        records = _record_set(stage, out, d, design_path, templates, kernel_name, timeout)
         folder.commit(d)
     return RecordResult(design_name=d.name, out_dir=out, index_path=out / "index.html",
                         records=tuple(records), notes=tuple(folder.notes))
+
+
+def _record_set(stage: Path, out: Path, d, design_path: Path, templates: dict,
+                kernel_name: str | None, timeout: int) -> list[WorkbookRecord]:
+    """Execute and render each workbook, writing into ``stage`` (reported as under ``out``),
+    then the index."""
+    kernel = _ex.Kernel(kernel_name)  # RecordError for a kernelspec that is not installed
+    date = utc_date()
+    commit = git_commit()
+    keep = _ex.design_ids(design_path)  # ids from the design file, kept by the normaliser
+    records = []
+    with kernel:
+        for name, (path, template) in templates.items():
+            nb = _ex.inject_parameters(template, design_path)
+            failure = _ex.execute(nb, kernel, cwd=path.parent, timeout=timeout)
+            _ex.normalise(nb, keep=keep)
+            page, checks = render_record(nb, design=d, workbook=name, date=date,
+                                         failure=failure, commit=commit)
+            nb_path, html_path = out / f"{name}.ipynb", out / f"{name}.html"
+            write_atomic(stage / nb_path.name, nbformat.writes(nb) + "\n")
+            write_atomic(stage / html_path.name, page)
+            records.append(WorkbookRecord(
+                name=name, html_path=html_path, notebook_path=nb_path, failure=failure,
+                checks_total=len(checks), checks_failed=sum(not c["passed"] for c in checks),
+                external=tuple(external_references(page))))
+    write_atomic(stage / "index.html", render_index(stage, d, date, records))
+    return records
 
 
 def new_folder(dir: str | Path, design_path: str | Path,

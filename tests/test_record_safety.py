@@ -316,6 +316,20 @@ def test_full_disk_while_staging_leaves_the_previous_set(small_disk, tmp_path, m
     _no_leftovers(out)
 
 
+def test_read_only_file_system_exits_2_with_one_line(small_disk, capsys):
+    if small_disk is None:
+        pytest.skip("needs a tmpfs mount (root); the full-disk test injects its error instead")
+    out = small_disk / "records"
+    before = _fake_set(out, SURVEY)
+    r = subprocess.run(["mount", "-o", "remount,ro", str(small_disk)], capture_output=True)
+    assert r.returncode == 0, r.stderr
+    assert cli_main(["record", str(SURVEY), "--workbooks", "hover", "--out", str(out),
+                     "--force"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "Read-only file system" in err[0] and "--out" in err[0]
+    assert _snapshot(out) == before
+
+
 # -- design text verbatim, terminal text escaped --------------------------------------------------
 
 

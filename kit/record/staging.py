@@ -53,6 +53,9 @@ CHECKPOINTS = ".ipynb_checkpoints"
 #: File suffixes a record folder may hold.
 RECORD_SUFFIXES = (".html", ".ipynb")
 
+#: Errors of writing files that become one line and exit 2 (others keep their traceback).
+_WRITE_ERRNOS = frozenset({errno.ENOSPC, errno.EDQUOT, errno.EFBIG, errno.EROFS, errno.EACCES,
+                           errno.EPERM, errno.EIO, errno.ENAMETOOLONG})
 _RENAME_EXCHANGE = 2  # linux/fs.h
 _AT_FDCWD = -100
 
@@ -314,7 +317,7 @@ class RecordFolder:
                 shutil.rmtree(self.stage, ignore_errors=True)
         finally:
             self._release()
-        if isinstance(exc, OSError):
+        if isinstance(exc, OSError) and exc.errno in _WRITE_ERRNOS:
             raise RecordError(_oserror_line(exc, self.shown)) from None
 
     # -- check and stage --------------------------------------------------------------------------

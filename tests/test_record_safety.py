@@ -458,28 +458,40 @@ def test_sigkill_at_seeded_points_never_leaves_a_half_set(hex_set, tmp_path):
     previous = _copy_set(src, out)
     rng = random.Random(15)
     delays = sorted(rng.uniform(0.05, 1.2) * duration for _ in range(4))
-    outcomes = []
+    outcomes, killed, kernels = [], [], []
     for delay in delays:
         p = subprocess.Popen(_record_cmd(SURVEY, out, "--force"), stdout=subprocess.DEVNULL,
                              stderr=subprocess.DEVNULL, cwd=ROOT)
-        try:
-            p.wait(timeout=delay)
-            outcomes.append(("finished", p.returncode))
-        except subprocess.TimeoutExpired:
+        end, kids = time.monotonic() + delay, []
+        while p.poll() is None and time.monotonic() < end:
+            kids = _children(p.pid)
+            time.sleep(0.1)
+        if p.poll() is None:
             p.kill()
             p.wait()
             outcomes.append(("killed", round(delay, 1)))
+            killed.append(p.pid)
+            kernels += kids
+        else:
+            outcomes.append(("finished", p.returncode))
         if _snapshot(out) == previous:
             continue  # the previous set, byte for byte
         _assert_whole_set(out, SURVEY)  # else the whole new set, nothing of the old one
         previous = _snapshot(out)
-    print("SIGKILL outcomes (delay s):", outcomes)
+    print(f"SIGKILL outcomes (full run {duration:.1f} s; delay s):", outcomes)
     assert any(kind == "killed" for kind, _ in outcomes)
     # the next run clears what the killed ones left beside the folder
     r = _run(_record_cmd(SURVEY, out, "--force"))
     assert r.returncode == 0, r.stderr
     _assert_whole_set(out, SURVEY)
     _no_leftovers(out)
+    if outcomes[-1][0] == "killed":
+        assert r.stdout.startswith(f"note: a previous run into {str(out)!r} (pid {killed[-1]}")
+    # the kernels of killed runs end (ipykernel watches its parent); their temporary
+    # folders (kernelspec, connection files) are removed by the next run
+    assert all(_gone(k, 30) for k in kernels)
+    tmp_root = Path(os.environ.get("TMPDIR", "/tmp"))
+    assert [d for pid in killed for d in tmp_root.glob(f"rotorbook-kernel-{pid}-*")] == []
 
 
 @kernel

@@ -12,7 +12,15 @@ import sys
 import warnings
 
 from kit import __version__
-from kit.errors import DesignError, DesignWarning, OptionError, RecordError, RotorbookError
+from kit.errors import (
+    DesignError,
+    DesignWarning,
+    OptionError,
+    RecordError,
+    RotorbookError,
+    Terminated,
+)
+from kit.textsafe import terminal_text
 
 EXIT_OK = 0
 EXIT_FAILED = 1
@@ -42,7 +50,7 @@ def _fmt_vec(v, digits=4) -> str:
 def check_summary(d, mp) -> str:
     """Short text summary of a valid design (``rotorbook check``)."""
     lines = [
-        f"{d.name} (revision {d.revision})  sha256 {d.sha256[:12]}",
+        f"{terminal_text(d.name)} (revision {terminal_text(d.revision)})  sha256 {d.sha256[:12]}",
         f"  mass            {mp.mass_kg:.4g} kg",
         f"  CoM             {_fmt_vec(mp.com_m)} m (design frame)",
         "  inertia about CoM (kg m^2, rotor spin inertia included):",
@@ -52,7 +60,8 @@ def check_summary(d, mp) -> str:
     lines.append(f"  rotors ({len(d.rotors)}), hubs about the CoM:")
     for r, pos in zip(d.rotors, mp.rotor_positions_m, strict=True):
         spin = "ccw" if r.spin > 0 else "cw"
-        lines.append(f"    {r.name:<14} {_fmt_vec(pos)} m  {spin:<3}  max {r.max_thrust_n:g} N")
+        lines.append(f"    {terminal_text(r.name):<14} {_fmt_vec(pos)} m  {spin:<3}  "
+                     f"max {r.max_thrust_n:g} N")
     if d.wheel is not None:
         lines.append(
             f"  wheel           h_max {d.wheel.max_momentum_n_m_s:.4g} N m s "
@@ -201,7 +210,32 @@ def _progress(label: str, enabled: bool):
         return None
     from kit.panels.progress import TextProgress
 
-    return TextProgress(label)
+    # the bar redraws with a carriage return: it writes to the stream under the escaping one
+    return TextProgress(terminal_text(label), stream=getattr(sys.stderr, "raw_stream",
+                                                              sys.stderr))
+
+
+#: Most grid points per side of ``rotorbook sweep`` (MAX_SWEEP_POINTS^2 points in all).
+MAX_SWEEP_POINTS = 101
+#: Largest offset span of ``rotorbook sweep``, in m.
+MAX_SWEEP_SPAN_M = 10.0
+
+
+def check_sweep_options(points: int, span_m: float) -> None:
+    """Refuse a sweep grid no design review needs, before any work (OptionError, exit 2).
+
+    ``points`` per side: 2 .. :data:`MAX_SWEEP_POINTS`. ``span_m``: finite, > 0 and at most
+    :data:`MAX_SWEEP_SPAN_M` m (offsets run from -span to +span).
+    """
+    import math
+
+    if not 2 <= points <= MAX_SWEEP_POINTS:
+        raise OptionError(f"--points: {points} -> a whole number from 2 to {MAX_SWEEP_POINTS} "
+                          f"(grid points per side; {MAX_SWEEP_POINTS} gives "
+                          f"{MAX_SWEEP_POINTS ** 2} points)")
+    if not (math.isfinite(span_m) and 0 < span_m <= MAX_SWEEP_SPAN_M):
+        raise OptionError(f"--span-m: {span_m!r} -> a finite number of metres, > 0 and at most "
+                          f"{MAX_SWEEP_SPAN_M:g} (offsets run from -span to +span)")
 
 
 def cmd_sweep(args) -> int:
@@ -220,8 +254,7 @@ def cmd_sweep(args) -> int:
     if unknown:
         raise OptionError(f"--failed: {', '.join(unknown)} -> rotor names: "
                              + ", ".join(d.rotor_names))
-    if args.points < 2 or args.span_m <= 0:
-        raise OptionError("--points must be >= 2 and --span-m > 0 (offsets -span..+span m)")
+    check_sweep_options(args.points, args.span_m)
     offsets = np.linspace(-args.span_m, args.span_m, args.points)
     executor = None
     if args.scheduler:
@@ -246,7 +279,8 @@ def cmd_sweep(args) -> int:
         json.dump(plain(pmap.to_dict()), sys.stdout)
         sys.stdout.write("\n")
         return EXIT_OK
-    print(f"{d.name}: '{args.part}' moved over {args.points} x {args.points} offsets, "
+    print(f"{terminal_text(d.name)}: {terminal_text(repr(args.part))} moved over "
+          f"{args.points} x {args.points} offsets, "
           f"+-{args.span_m:g} m in x and y")
     cases = [("no failure", pmap.hover)]
     if pmap.failure is not None:
@@ -270,7 +304,7 @@ def cmd_record(args) -> int:
 
         previous = load_revision(args.previous)  # invalid -> exit 2 before anything runs
     result = record_design(args.design, workbooks=args.workbooks, out_dir=args.out,
-                           force=args.force)
+                           force=args.force, wait=args.wait)
     for line in result.lines():
         print(line)
     if previous is not None:
@@ -375,7 +409,11 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
                    help="workbook names (default: all templates)")
     r.add_argument("--out", default="records", metavar="DIR", help="output folder")
-    r.add_argument("--force", action="store_true", help="replace existing records")
+    r.add_argument("--force", action="store_true",
+                   help="replace existing records, or a folder of another design's records")
+    r.add_argument("--wait", action="store_true",
+                   help="wait for another run writing into the same folder instead of "
+                        "stopping (exit 2)")
     r.add_argument("--previous", default=None, metavar="OLD",
                    help="the previous revision (design file or analyze --json output): adds "
                         "the comparison page to the index")
@@ -420,7 +458,31 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+class _TerminalStream:
+    """A text stream that escapes control characters (:func:`kit.textsafe.terminal_text`)
+    in everything written to it, line feeds apart."""
+
+    def __init__(self, stream):
+        self.raw_stream = stream
+
+    def write(self, text: str) -> int:
+        self.raw_stream.write(terminal_text(text, keep_newlines=True))
+        return len(text)
+
+    def __getattr__(self, name):
+        return getattr(self.raw_stream, name)
+
+
 def main(argv: list[str] | None = None) -> int:
+    out, err = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = _TerminalStream(out), _TerminalStream(err)
+    try:
+        return _main(argv)
+    finally:
+        sys.stdout, sys.stderr = out, err
+
+
+def _main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
@@ -442,6 +504,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:  # pragma: no cover
         print("rotorbook: interrupted", file=sys.stderr)
         return 130
+    except Terminated:
+        print("rotorbook: stopped by SIGTERM; nothing half written was left behind",
+              file=sys.stderr)
+        return 143
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -33,6 +33,10 @@ class RecordError(RotorbookError):
     """A calculation record could not be written (existing file, failed workbook, bad option)."""
 
 
+class Terminated(BaseException):
+    """The run received SIGTERM; raised (not an Exception) so every ``with`` block unwinds."""
+
+
 class DesignWarning(UserWarning):
     """A design file is valid but something in it deserves a second look."""
 

@@ -162,8 +162,8 @@ def test_record_files_and_result(recorded):
     result, out = recorded
     assert not result.ok  # record_fail raises
     names = sorted(p.name for p in out.iterdir())
-    assert names == ["index.html", "record_demo.html", "record_demo.ipynb", "record_fail.html",
-                     "record_fail.ipynb"]
+    assert names == [".rotorbook-set.json", "index.html", "record_demo.html",
+                     "record_demo.ipynb", "record_fail.html", "record_fail.ipynb"]
     lines = result.lines()
     assert lines[0].startswith("record_demo: done, 1/2 checks met")
     assert lines[1].startswith(

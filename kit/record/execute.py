@@ -7,23 +7,36 @@ inserted right after it with ``DESIGN_PATH = "<absolute path>"``.
 Normalisation makes the executed notebook depend only on its inputs: execution timestamps and
 kernel metadata are dropped, Python's hash seed is fixed, BokehJS model ids are the simple
 integer ones (``BOKEH_SIMPLE_IDS``), and the UUIDs that Bokeh and ipywidgets still draw at
-random (document ids, div ids, widget model ids) are renumbered in order of appearance.
+random (document ids, div ids, widget model ids) are renumbered in order of appearance. Ids
+that occur in the design file's own text (a revision that is a 32-digit hex string, a serial
+number that is a UUID) are kept byte for byte: :func:`design_ids` lists them and
+:func:`normalise` leaves them alone.
+
+A run stopped with SIGTERM unwinds (:func:`sigterm_unwinds`): the kernel is shut down, its
+connection file (kept in the run's own temporary folder) removed, and :class:`Terminated`
+raised to the caller.
 """
 
 from __future__ import annotations
 
+import contextlib
 import copy
 import json
 import os
 import re
+import shutil
+import signal
 import sys
 import tempfile
+import threading
+import tomllib
+import uuid
 from dataclasses import dataclass
 from pathlib import Path
 
 import nbformat
 
-from kit.errors import RecordError
+from kit.errors import RecordError, Terminated
 
 PARAMETERS_TAG = "parameters"
 INJECTED_TAG = "injected-parameters"
@@ -92,20 +105,69 @@ def rewrite_parameters(nb, design_path: str):
 # -- kernel ---------------------------------------------------------------------------------------
 
 
+@contextlib.contextmanager
+def sigterm_unwinds():
+    """While inside, SIGTERM raises :class:`Terminated` instead of ending the process at once.
+
+    Only in the main thread and only where SIGTERM has its default action (an application
+    that handles SIGTERM itself keeps its handler).
+    """
+    if threading.current_thread() is not threading.main_thread() \
+            or signal.getsignal(signal.SIGTERM) is not signal.SIG_DFL:
+        yield
+        return
+
+    def _raise(signum, frame):
+        raise Terminated(f"stopped by signal {signum}")
+
+    signal.signal(signal.SIGTERM, _raise)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+#: Prefix of a run's temporary folder (kernelspec and kernel connection files).
+_TMP_PREFIX = "rotorbook-kernel-"
+
+
+def _remove_dead_runs_tmp() -> None:
+    """Remove temporary folders of runs that were killed (their pid is gone)."""
+    pattern = re.compile(re.escape(_TMP_PREFIX) + r"(\d+)-")
+    try:
+        entries = list(Path(tempfile.gettempdir()).iterdir())
+    except OSError:
+        return
+    for p in entries:
+        m = pattern.match(p.name)
+        if not m or int(m.group(1)) == os.getpid():
+            continue
+        try:
+            os.kill(int(m.group(1)), 0)
+        except ProcessLookupError:
+            shutil.rmtree(p, ignore_errors=True)
+        except OSError:
+            pass
+
+
 class Kernel:
-    """The kernel to run workbooks in; a context manager that owns any temporary kernelspec.
+    """The kernel to run workbooks in; a context manager that owns a temporary folder.
 
     With ``kernel_name=None`` a kernelspec for this very interpreter (``sys.executable``) is
-    written to a temporary folder, so a record always runs with the kit that made it. A named
-    kernelspec must be installed (``jupyter kernelspec list``).
+    written to the temporary folder, so a record always runs with the kit that made it. A named
+    kernelspec must be installed (``jupyter kernelspec list``). Kernel connection files are
+    written into the temporary folder too, so closing removes them whatever happened to the
+    kernel; folders left by killed runs (their pid is gone) are removed when a new one opens.
     """
 
     def __init__(self, kernel_name: str | None = None):
         from jupyter_client.kernelspec import KernelSpecManager, NoSuchKernel
 
-        self._tmp: tempfile.TemporaryDirectory | None = None
+        _remove_dead_runs_tmp()
+        self._tmp: tempfile.TemporaryDirectory | None = tempfile.TemporaryDirectory(
+            prefix=f"{_TMP_PREFIX}{os.getpid()}-")
+        self.runtime_dir = self._tmp.name
         if kernel_name is None:
-            self._tmp = tempfile.TemporaryDirectory(prefix="rotorbook-kernel-")
             spec_dir = Path(self._tmp.name) / OWN_KERNEL_NAME
             spec_dir.mkdir()
             (spec_dir / "kernel.json").write_text(json.dumps({
@@ -127,7 +189,8 @@ class Kernel:
                               "(or leave it out to use this Python)") from None
 
     def manager_class(self):
-        """A kernel manager class that finds kernelspecs where this object looks.
+        """A kernel manager class that finds kernelspecs where this object looks and writes
+        connection files into this object's temporary folder.
 
         nbclient then creates, owns and shuts down the kernel and its channels itself.
         """
@@ -135,11 +198,16 @@ class Kernel:
         from traitlets import default
 
         ksm = self.ksm
+        runtime_dir = self.runtime_dir
 
         class _Manager(AsyncKernelManager):
             @default("kernel_spec_manager")
             def _kernel_spec_manager_default(self):
                 return ksm
+
+            @default("connection_file")
+            def _connection_file_default(self):
+                return os.path.join(runtime_dir, f"kernel-{uuid.uuid4()}.json")
 
         return _Manager
 
@@ -183,6 +251,10 @@ def execute(nb, kernel: Kernel, cwd: Path, timeout: int = 600) -> CellFailure | 
         timeout=timeout, allow_errors=False, record_timing=False,
         store_widget_state=False, resources={"metadata": {"path": str(cwd)}},
     )
+    # nbclient shuts the kernel down on SIGTERM and then resets SIGTERM to its default action;
+    # the handler in place before (see sigterm_unwinds) is put back, and the signal re-raised
+    main = threading.current_thread() is threading.main_thread()
+    before = signal.getsignal(signal.SIGTERM) if main else None
     try:
         client.execute(env=kernel_env())
     except CellExecutionError as exc:
@@ -192,6 +264,11 @@ def execute(nb, kernel: Kernel, cwd: Path, timeout: int = 600) -> CellFailure | 
                            f"({_first_line(str(exc))})", _running_cell(nb))
     except DeadKernelError as exc:
         return CellFailure("DeadKernelError", _first_line(str(exc)), _running_cell(nb))
+    finally:
+        if main and before is not None:
+            signal.signal(signal.SIGTERM, before)
+        if getattr(client, "_async_cleanup_kernel_future", None) is not None:
+            raise Terminated("stopped by SIGTERM while a workbook ran")
     return None
 
 
@@ -218,15 +295,60 @@ def _running_cell(nb) -> int | None:
 # -- determinism ----------------------------------------------------------------------------------
 
 
-class IdMap:
-    """Renumber random ids in order of first appearance: ``rb-0001-...`` for UUIDs, hex for
-    32-digit model ids, so the same inputs give the same text."""
+def design_ids(path: str | Path) -> frozenset[str]:
+    """Every id-like string (UUID, 32 hex digits) in the design file's text and its path.
 
-    def __init__(self) -> None:
+    :func:`normalise` keeps these byte for byte. The file's raw text is searched, and so is
+    every string (and key) TOML parses out of it, since an escape such as ``\\u0030`` can spell
+    hex digits that the raw text does not show.
+    """
+    texts = [str(path)]
+    try:
+        raw = Path(path).read_bytes().decode("utf-8", errors="replace")
+    except OSError:
+        raw = ""
+    texts.append(raw)
+    try:
+        _strings(tomllib.loads(raw), texts)
+    except tomllib.TOMLDecodeError:
+        pass
+    found: set[str] = set()
+    for t in texts:
+        found.update(m.group(0).lower() for m in _UUID_ANY_RE.finditer(t))
+        found.update(m.group(0) for m in _HEX32_ANY_RE.finditer(t))
+    return frozenset(found)
+
+
+_UUID_ANY_RE = re.compile(r"[0-9a-fA-F]{8}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-"
+                          r"[0-9a-fA-F]{12}")
+_HEX32_ANY_RE = re.compile(r"(?<![0-9a-fA-F])[0-9a-f]{32}(?![0-9a-fA-F])")
+
+
+def _strings(obj, out: list[str]) -> None:
+    if isinstance(obj, str):
+        out.append(obj)
+    elif isinstance(obj, dict):
+        for k, v in obj.items():
+            out.append(str(k))
+            _strings(v, out)
+    elif isinstance(obj, list):
+        for v in obj:
+            _strings(v, out)
+
+
+class IdMap:
+    """Renumber random ids in order of first appearance: ``b0000001-0000-4000-8000-...`` for
+    UUIDs, hex for 32-digit model ids, so the same inputs give the same text. Ids in ``keep``
+    (from the design file, :func:`design_ids`) are left as they are."""
+
+    def __init__(self, keep: frozenset[str] | set[str] = frozenset()) -> None:
         self.seen: dict[str, str] = {}
+        self.keep = frozenset(keep)
 
     def _uuid(self, m: re.Match) -> str:
         k = m.group(0).lower()
+        if k in self.keep:
+            return m.group(0)
         if k not in self.seen:
             n = len(self.seen) + 1
             self.seen[k] = f"b{n:07d}-0000-4000-8000-000000000000"
@@ -234,6 +356,8 @@ class IdMap:
 
     def _hex(self, m: re.Match) -> str:
         k = m.group(0)
+        if k in self.keep:
+            return k
         if k not in self.seen:
             self.seen[k] = f"{len(self.seen) + 1:032x}"
         return self.seen[k]
@@ -244,9 +368,12 @@ class IdMap:
         return _ADDRESS_RE.sub(" at 0x...>", text)
 
 
-def normalise(nb) -> None:
-    """Strip what varies between runs from an executed notebook, in place."""
-    ids = IdMap()
+def normalise(nb, keep: frozenset[str] | set[str] = frozenset()) -> None:
+    """Strip what varies between runs from an executed notebook, in place.
+
+    ``keep``: ids that came from the design file (:func:`design_ids`), left unchanged.
+    """
+    ids = IdMap(keep)
     nb.metadata.pop("widgets", None)
     nb.metadata.pop("papermill", None)
     for cell in nb.cells:

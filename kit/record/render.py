@@ -32,6 +32,7 @@ from kit.errors import RecordError
 from kit.fileio import write_atomic
 from kit.record import execute as _ex
 from kit.record.offline import external_references
+from kit.record.staging import RecordFolder
 
 #: Display mime type of the design checks a workbook emits: a JSON list of
 #: {"name", "value", "limit", "passed", "unit"?, "case"?}.
@@ -106,6 +107,7 @@ class RecordResult:
     out_dir: Path
     index_path: Path
     records: tuple[WorkbookRecord, ...] = field(default=())
+    notes: tuple[str, ...] = ()
 
     @property
     def ok(self) -> bool:
@@ -113,7 +115,7 @@ class RecordResult:
 
     def lines(self) -> list[str]:
         """One line per workbook, then the index path (what ``rotorbook record`` prints)."""
-        out = [r.line() for r in self.records]
+        out = [f"note: {n}" for n in self.notes] + [r.line() for r in self.records]
         failed = sum(not r.ok for r in self.records)
         if failed:
             out.append(f"{failed} of {len(self.records)} workbook(s) FAILED")
@@ -440,7 +442,7 @@ def _record_meta(path: Path) -> tuple[str, str] | None:
 
 def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str | Path = "records",
                   force: bool = False, kernel_name: str | None = None, timeout: int = 600,
-                  template_dir: str | Path | None = None) -> RecordResult:
+                  template_dir: str | Path | None = None, wait: bool = False) -> RecordResult:
     """Execute workbooks for one design and write their calculation records.
 
     Parameters
@@ -460,6 +462,9 @@ def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str |
         Longest time one cell may run, in s.
     template_dir : str or Path, optional
         Folder of workbook templates; default ``workbooks/`` beside the kit.
+    wait : bool
+        Wait for another run writing into ``out_dir`` instead of failing at once (see
+        :mod:`kit.record.staging`: one writer per folder, sets swapped in whole).
 
     Returns
     -------
@@ -472,7 +477,9 @@ def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str |
         The design file is invalid.
     RecordError
         Unknown workbook, a template without a ``parameters`` cell, an existing record without
-        ``force``, or a kernelspec that is not installed.
+        ``force``, a folder holding another design's records without ``force``, a folder
+        another run is writing, a write failure (disk full, permission), or a kernelspec that
+        is not installed.
     """
     from kit.design import load
 
@@ -488,34 +495,40 @@ def record_design(design, workbooks: Sequence[str] | None = None, out_dir: str |
         except RecordError as exc:
             raise RecordError(f"workbook {name!r}: {exc}") from None
         templates[name] = (path, nb)
-    if not force:
-        existing = [str(p) for name in chosen for p in (out / f"{name}.html", out / f"{name}.ipynb")
-                    if p.exists()]
-        if existing:
-            raise RecordError(f"record exists: {', '.join(existing)} -> use --force "
-                              "(force=True) to replace it")
+    # one writer per folder; the set is written into a staging folder and swapped in whole
+    with _ex.sigterm_unwinds(), RecordFolder(out, wait=wait) as folder:
+        stage = folder.prepare(d, chosen, force)
+        records = _record_set(stage, out, d, design_path, templates, kernel_name, timeout)
+        folder.commit(d)
+    return RecordResult(design_name=d.name, out_dir=out, index_path=out / "index.html",
+                        records=tuple(records), notes=tuple(folder.notes))
+
+
+def _record_set(stage: Path, out: Path, d, design_path: Path, templates: dict,
+                kernel_name: str | None, timeout: int) -> list[WorkbookRecord]:
+    """Execute and render each workbook, writing into ``stage`` (reported as under ``out``),
+    then the index."""
     kernel = _ex.Kernel(kernel_name)  # RecordError for a kernelspec that is not installed
-    out.mkdir(parents=True, exist_ok=True)
     date = utc_date()
     commit = git_commit()
+    keep = _ex.design_ids(design_path)  # ids from the design file, kept by the normaliser
     records = []
     with kernel:
         for name, (path, template) in templates.items():
             nb = _ex.inject_parameters(template, design_path)
             failure = _ex.execute(nb, kernel, cwd=path.parent, timeout=timeout)
-            _ex.normalise(nb)
+            _ex.normalise(nb, keep=keep)
             page, checks = render_record(nb, design=d, workbook=name, date=date,
                                          failure=failure, commit=commit)
             nb_path, html_path = out / f"{name}.ipynb", out / f"{name}.html"
-            write_atomic(nb_path, nbformat.writes(nb) + "\n")
-            write_atomic(html_path, page)
+            write_atomic(stage / nb_path.name, nbformat.writes(nb) + "\n")
+            write_atomic(stage / html_path.name, page)
             records.append(WorkbookRecord(
                 name=name, html_path=html_path, notebook_path=nb_path, failure=failure,
                 checks_total=len(checks), checks_failed=sum(not c["passed"] for c in checks),
                 external=tuple(external_references(page))))
-    index = out / "index.html"
-    write_atomic(index, render_index(out, d, date, records))
-    return RecordResult(design_name=d.name, out_dir=out, index_path=index, records=tuple(records))
+    write_atomic(stage / "index.html", render_index(stage, d, date, records))
+    return records
 
 
 def new_folder(dir: str | Path, design_path: str | Path,

@@ -65,7 +65,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg as sla
-from scipy.optimize import brentq, minimize
+from scipy.optimize import brentq
 from scipy.signal import cont2discrete
 
 from kit.analysis.equilibrium import Equilibrium

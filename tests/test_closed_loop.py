@@ -278,7 +278,7 @@ def test_design_fields_motor_lag_idle_and_thresholds():
     assert [r.motor_time_constant_s for r in d.rotors] == [0.02, 0.04, 0.02, 0.02]
     assert [r.min_thrust_n for r in d.rotors] == [0.0, 0.0, 0.2, 0.0]
     doc["rotor"][2]["min_thrust_n"] = 4.0
-    with pytest.raises(DesignError, match=r"rotor\[2\].min_thrust_n"):
+    with pytest.raises(DesignError, match=r"rotor 'r2'.min_thrust_n"):
         from_dict(doc)
 
 

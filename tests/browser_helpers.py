@@ -249,8 +249,9 @@ DOC_COUNT_JS = """() => {
 
 #: JavaScript installed once per page: times from an input event to the first animation frame
 #: after the last change of a figure. A change is a change event of any live Bokeh document
-#: (data pushed in place) or a new embed (the ``__rotorbookEmbeds`` redraw counter of a
-#: re-embedding panel); every figure drawn in a frame is painted before the next frame's
+#: (data pushed in place), a new embed (the ``__rotorbookEmbeds`` redraw counter of a
+#: re-embedding panel) or a change of the watched panel's DOM outside the figures (its
+#: readouts); every figure drawn in a frame is painted before the next frame's
 #: callbacks run, so the frame after the one that saw the change is the repaint. It also keeps
 #: the smallest and largest height of a watched element between ``arm`` and the next ``arm``.
 LATENCY_HARNESS_JS = """() => {
@@ -262,8 +263,12 @@ LATENCY_HARNESS_JS = """() => {
       if (H.armed && H.t0 === null) H.t0 = e.timeStamp;
     }, true);
   }
+  // text changes of the panel's readouts count too (a control may change only a table)
+  H.observer = new MutationObserver(() => { H.pending += 1; });
   H.arm = (el) => { H.armed = true; H.t0 = null; H.paints = []; H.el = el || null;
-                    H.hmin = Infinity; H.hmax = 0; };
+                    H.hmin = Infinity; H.hmax = 0; H.observer.disconnect();
+                    if (el) H.observer.observe(el, {subtree: true, childList: true,
+                                                    characterData: true}); };
   let embeds = window.__rotorbookEmbeds || 0;
   let seen = 0;
   const hook = () => {
@@ -371,3 +376,61 @@ def measure(page, panel, act, settle_s: float = 0.6, timeout_s: float = 20.0) ->
     page.evaluate("() => { window.__rbLatency.armed = false; }")
     ms = (st["paints"][-1] - st["t0"]) if st["paints"] and st["t0"] is not None else None
     return {"ms": ms, "hmin": st["hmin"], "hmax": st["hmax"]}
+
+
+#: JavaScript: the data of the first ColumnDataSource holding column ``col`` (or, for
+#: ``"a,b"``, exactly the sorted columns a and b) in the live Bokeh documents of the page
+#: (widget documents first), with the number of documents.
+LIVE_DATA_JS = """(col) => {
+  const B = window.Bokeh;
+  if (!B) return null;
+  const docs = [];
+  try {
+    for (const v of (B.index && B.index.roots) || []) {
+      if (v && v.model && v.model.document && !docs.includes(v.model.document))
+        docs.push(v.model.document);
+    }
+  } catch (e) { /* no index */ }
+  for (const d of B.documents || []) if (!docs.includes(d)) docs.push(d);
+  const plain = (v) => (v && typeof v.length === 'number' && typeof v !== 'string')
+      ? Array.from(v, plain) : v;
+  for (const doc of docs) {
+    const models = doc.all_models ? Array.from(doc.all_models)
+        : Array.from(doc._all_models.values());
+    for (const m of models) {
+      if (m.type !== 'ColumnDataSource') continue;
+      const d = m.data instanceof Map ? Object.fromEntries(m.data) : m.data;
+      const exact = col.includes(',');
+      const hit = d && (exact ? Object.keys(d).sort().join(',') === col : col in d);
+      if (hit) {
+        const out = {};
+        for (const k of Object.keys(d).sort()) out[k] = plain(d[k]);
+        return {ndocs: docs.length, data: out};
+      }
+    }
+  }
+  return {ndocs: docs.length, data: null};
+}"""
+
+#: JavaScript: the notices shown over figures (visible Labels with text) and whether every
+#: data range of the live documents has finite bounds (the axes are drawn).
+NOTICES_AND_RANGES_JS = """() => {
+  const B = window.Bokeh;
+  const docs = new Set();
+  for (const v of (B.index && B.index.roots) || []) {
+    if (v && v.model && v.model.document) docs.add(v.model.document);
+  }
+  const notices = [];
+  const bad = [];
+  for (const doc of docs) {
+    for (const m of doc.all_models) {
+      if (m.type === 'Label' && m.visible && m.text && m.x_units === 'screen'
+          && m.y_units === 'screen') notices.push(m.text);
+      if (m.type === 'DataRange1d' || m.type === 'Range1d') {
+        if (!(Number.isFinite(m.start) && Number.isFinite(m.end) && m.end > m.start))
+          bad.push([m.id, m.start, m.end]);
+      }
+    }
+  }
+  return {notices: notices, bad_ranges: bad};
+}"""

@@ -131,7 +131,8 @@ def test_failing_every_rotor_shows_a_message(survey):
     p.set_failed(survey.rotor_names)
     assert "every rotor has failed" in p.message
     assert "every rotor has failed" in p._repr_mimebundle_()["text/html"]
-    assert p.sources["thrust"]["bars"].data["thrust"] == []
+    assert p.sources["thrust"]["bars"].data["thrust"] == [0.0] * 4  # bars kept at zero
+    assert p.sources["thrust"]["bars"].data["colour"] == [plots.COLOURS["failed"]] * 4
     p.set_failed(("front_left",))  # and it recovers
     assert p.message == "" and p.view.eq.found
 

@@ -313,7 +313,12 @@ class FailurePanel(Panel):
 
     def _clear_figures(self, why: str = "") -> None:
         """Empty the equilibrium figures (axes kept) and say why over them."""
-        for name in ("thrust", "poles", "circle"):
+        veh = self.vehicle
+        # the bars stay (at zero, as failed) so the thrust axis keeps its limits
+        plots.set_data(self.sources["thrust"]["bars"], plots.thrust_data(
+            veh.names, np.zeros(veh.n), veh.max_thrust_n, working=np.zeros(veh.n, bool),
+            spin=veh.spin, threshold_fraction=None)["bars"])
+        for name in ("poles", "circle"):
             for key, src in self.sources[name].items():
                 if key != "anchor":
                     plots.set_data(src, {c: [] for c in src.data})

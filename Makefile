@@ -56,14 +56,18 @@ test: $(STAMP) chromium lint
 test-fast: $(STAMP)
 	$(PY) -m pytest -n 2 --dist loadfile -m "not slow" tests
 
-## make bench: speed and memory, as ratios measured in one run (never fails on time)
-bench: $(STAMP)
+## make bench: speed and memory, as ratios measured in one run (never fails on time);
+## bench_browser.py times the panels in JupyterLab driven in Debian's chromium
+bench: $(STAMP) chromium
 	@for b in tests/bench/bench_*.py; do echo "== $$b"; $(PY) $$b || exit 1; done
 
 ## make lab: JupyterLab on 127.0.0.1 over the workbooks
+## (no update check and no news fetch: the server never goes online; --allow-root when root)
 lab: $(STAMP)
 	$(VENV)/bin/jupyter lab --ip=127.0.0.1 --no-browser \
-	  --ServerApp.jpserver_extensions="{'kit.panels.serve': True}" --ServerApp.root_dir=$(CURDIR)
+	  --ServerApp.jpserver_extensions="{'kit.panels.serve': True}" --ServerApp.root_dir=$(CURDIR) \
+	  --LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate --LabApp.news_url=None \
+	  $$(if [ "$$(id -u)" = 0 ]; then echo --allow-root; fi)
 
 ## make outputs: regenerate the workbook templates and their stored outputs (commit on its own)
 outputs: $(STAMP)

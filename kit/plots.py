@@ -129,6 +129,58 @@ def _legend_style(p, location="top_right") -> None:
         p.legend.spacing = 0
 
 
+def _legend_below(p) -> None:
+    """The legend outside the plot area, below it, in one row, so it never hides data."""
+    _legend_style(p)
+    if p.legend:
+        p.legend.orientation = "horizontal"
+        p.add_layout(p.legend[0], "below")
+
+
+def _legend_right(p) -> None:
+    """The legend outside the plot area, on its right, so it never hides data."""
+    _legend_style(p)
+    if p.legend:
+        p.add_layout(p.legend[0], "right")
+
+
+def _anchor(p, s: dict, x: str = "re", y: str = "im") -> None:
+    """An invisible point at the origin, so an empty figure keeps its axes (ranges)."""
+    s["anchor"] = _source(**{x: [0.0], y: [0.0]})
+    p.scatter(x=x, y=y, source=s["anchor"], size=1, alpha=0.0)
+
+
+def add_notice(p):
+    """A message box over a figure's plot area (empty, hidden until :func:`set_notice`)."""
+    from bokeh.models import Label
+
+    label = Label(x=12, y=12, x_units="screen", y_units="screen", text="", visible=False,
+                  text_font=FONT, text_font_size="12px", text_color="#222222",
+                  background_fill_color="#FBEFE6", background_fill_alpha=0.95,
+                  border_line_color=COLOURS["cw"], border_line_width=1, padding=6)
+    p.add_layout(label)
+    return label
+
+
+def set_notice(label, text: str) -> None:
+    """Show ``text`` over the figure (an empty text hides the box); no event when unchanged."""
+    text = str(text or "")
+    if label.text != text:
+        label.text = text
+    if label.visible != bool(text):
+        label.visible = bool(text)
+
+
+def show_legend_item(p, label: str, shown: bool) -> None:
+    """Show a legend entry only while what it names is drawn."""
+    for leg in p.legend:
+        for item in leg.items:
+            lab = item.label
+            name = lab.get("value") if isinstance(lab, dict) else getattr(lab, "value", lab)
+            if name == label and item.visible != shown:
+                item.visible = shown
+
+
 def _source(**cols):
     from bokeh.models import ColumnDataSource
 
@@ -237,6 +289,14 @@ def _index_sources(obj, out: dict) -> None:
             _index_sources(v, out)
 
 
+#: Shown in place of a stored figure until its script runs: JupyterLab runs the scripts of
+#: stored outputs only in a trusted notebook.
+UNTRUSTED_NOTICE = ("This figure is drawn by a script, and JupyterLab runs the scripts of stored "
+                    "outputs only in a trusted notebook: run the workbook (Run > Run All Cells) "
+                    "or trust it (command palette: Trust Notebook, or `jupyter trust` on the file) "
+                    "to see it.")
+
+
 def embed_html(model, doc_json: dict | None = None) -> str:
     """One HTML fragment rendering ``model`` (a figure or layout).
 
@@ -259,9 +319,14 @@ def embed_html(model, doc_json: dict | None = None) -> str:
     missing = html.escape("This figure needs BokehJS: open the workbook in JupyterLab started "
                           "with `make lab` (it serves BokehJS from the local installation).")
     return (
+        f'<div id="{elid}-untrusted" class="rb-untrusted" style="border-left: 4px solid '
+        '#D55E00; background: #FBEFE6; padding: 4px 8px; margin: 4px 0; font-family: '
+        f'Helvetica, Arial, sans-serif; font-size: 12px;">{html.escape(UNTRUSTED_NOTICE)}</div>\n'
         f'<div id="{elid}" class="rb-figure" data-root-id="{model.id}" '
         'style="display: contents;"></div>\n'
         '<script type="text/javascript">\n(function () {\n'
+        f"const note = document.getElementById({json.dumps(elid + '-untrusted')});\n"
+        "if (note) note.remove();\n"
         f"const docs_json = {_js_json(docs_json)};\n"
         f"const render_items = {_js_json(items)};\n"
         f"{loader_js()}\n"
@@ -325,19 +390,39 @@ def in_document(model):
 
 
 def set_data(source, data: dict) -> None:
-    """Replace a source's data with a new dict (one change event, as STYLE.md asks)."""
-    source.data = dict(data)
+    """Replace a source's data with a new dict (one change event, as STYLE.md asks).
+
+    Nothing is sent when the data is the same as before (no redraw for no change).
+    """
+    new = dict(data)
+    old = source.data
+    if set(old) == set(new) and all(_same_column(old[k], v) for k, v in new.items()):
+        return
+    source.data = new
+
+
+def _same_column(a, b) -> bool:
+    """Whether two data columns hold the same values (nan equal to nan)."""
+    a, b = list(a), list(b)
+    if len(a) != len(b):
+        return False
+    for x, y in zip(a, b, strict=True):
+        if x != y and not (isinstance(x, float) and isinstance(y, float)
+                           and math.isnan(x) and math.isnan(y)):
+            return False
+    return True
 
 
 # --- overview: top view ---------------------------------------------------------------------
 
 
-def top_view_figure(extent_m: float):
+def top_view_figure(extent_m: float, wheel: bool = True):
     """Top view of the layout: forward (x_B) up the page, right (-y_B) to the right, in m.
 
     Plot coordinates are ``(-y_B, x_B)``, a proper rotation, so counter-clockwise about +z_B
     (seen from above) is counter-clockwise on the page.
     """
+    from bokeh.core.properties import value
     from bokeh.models import LabelSet, Range1d
 
     e = float(extent_m)
@@ -358,12 +443,15 @@ def top_view_figure(extent_m: float):
           line_color="colour", line_width=2)
     p.scatter(x="sx", y="sy", angle="angle", source=s["heads"], marker="triangle", size=9,
               fill_color="colour", line_color="colour")
+    # text_font is a data spec on a LabelSet: a bare string would name a column
     p.add_layout(LabelSet(x="sx", y="label_sy", text="name", source=s["rotors"],
-                          text_font_size="10px", text_align="center", text_font=FONT))
+                          text_font_size=value("10px"), text_align="center",
+                          text_font=value(FONT)))
     p.multi_line(xs="xs", ys="ys", source=s["axes"], line_color="colour", line_width=2,
                  legend_field="name")
-    p.circle(x="sx", y="sy", radius="r", source=s["wheel"], fill_color=COLOURS["wheel"],
-             fill_alpha=0.35, line_color=COLOURS["wheel"], legend_label="wheel")
+    if wheel:  # drawn (and in the legend) only for a design with a wheel
+        p.circle(x="sx", y="sy", radius="r", source=s["wheel"], fill_color=COLOURS["wheel"],
+                 fill_alpha=0.35, line_color=COLOURS["wheel"], legend_label="wheel")
     p.scatter(x="sx", y="sy", source=s["com"], marker="circle_cross", size=14,
               fill_color="white", line_color=COLOURS["com"], line_width=2,
               legend_label="centre of mass")
@@ -444,8 +532,12 @@ def extent_of(mp, design=None) -> float:
 # --- thrust bars (hover and failure) --------------------------------------------------------
 
 
-def thrust_figure(names, title: str = "Thrust per rotor against its limit"):
-    """Bars of thrust per rotor, the limit as a black tick, a threshold as an orange tick."""
+def thrust_figure(names, title: str = "Thrust per rotor against its limit",
+                  threshold: bool = True):
+    """Bars of thrust per rotor, the limit as a black tick, a threshold as an orange tick.
+
+    ``threshold=False`` leaves the threshold tick (and its legend entry) out.
+    """
     p = new_figure(title, "rotor", "thrust (N)", width=340, height=330,
                    x_range=list(names))
     s = {"bars": _source(name=[], thrust=[], colour=[], limit=[], threshold=[], label=[])}
@@ -453,8 +545,9 @@ def thrust_figure(names, title: str = "Thrust per rotor against its limit"):
            line_color=None, legend_field="label")
     p.scatter(x="name", y="limit", source=s["bars"], marker="dash", size=34, line_width=3,
               line_color=COLOURS["limit"], legend_label="limit")
-    p.scatter(x="name", y="threshold", source=s["bars"], marker="dash", size=34, line_width=2,
-              line_color=COLOURS["threshold"], legend_label="review threshold")
+    if threshold:
+        p.scatter(x="name", y="threshold", source=s["bars"], marker="dash", size=34,
+                  line_width=2, line_color=COLOURS["threshold"], legend_label="review threshold")
     p.y_range.start = 0
     _legend_style(p, "top_left")
     # below the plot, so that it never hides a bar
@@ -493,7 +586,7 @@ def torque_figure():
            fill_color=COLOURS["fixed_gain"], line_color=None, legend_label="min .. max")
     p.scatter(x="axis", y="margin", source=s["bars"], marker="dash", size=28, line_width=3,
               line_color=COLOURS["limit"], legend_label="margin (smaller side)")
-    _legend_style(p, "top_left")
+    _legend_below(p)
     return p, s
 
 
@@ -520,7 +613,8 @@ def poles_figure():
     p.scatter(x="re", y="im", source=s["closed"], marker="circle", size=9,
               fill_color=COLOURS["closed_loop"], line_color=COLOURS["closed_loop"],
               legend_label="closed loop (LQR)")
-    _legend_style(p, "top_left")
+    _anchor(p, s)
+    _legend_below(p)
     return p, s
 
 
@@ -538,8 +632,12 @@ def poles_data(closed_loop, open_loop) -> dict[str, dict]:
 
 def circle_figure():
     """The centre of mass's circle in the world's horizontal plane, in mm."""
+    from bokeh.models import DataRange1d
+
+    # padded data ranges so the whole circle (and its line width) stays inside the frame
     p = new_figure("Centre-of-mass path (from above)", "east (mm)", "north (mm)",
-                   width=270, height=300, match_aspect=True)
+                   width=270, height=330, match_aspect=True,
+                   x_range=DataRange1d(range_padding=0.2), y_range=DataRange1d(range_padding=0.2))
     p.xaxis.ticker.desired_num_ticks = 4
     p.yaxis.ticker.desired_num_ticks = 4
     s = {"path": _source(x=[], y=[]), "centre": _source(x=[], y=[])}
@@ -547,7 +645,8 @@ def circle_figure():
            legend_label="equilibrium circle")
     p.scatter(x="x", y="y", source=s["centre"], marker="cross", size=12,
               line_color=COLOURS["com"], line_width=2, legend_label="circle centre")
-    _legend_style(p, "top_left")
+    _anchor(p, s, "x", "y")
+    _legend_below(p)
     return p, s
 
 
@@ -561,8 +660,11 @@ def circle_data(radius_m: float, n: int = 121) -> dict[str, dict]:
             "centre": {"x": [0.0], "y": [0.0]}}
 
 
-def response_figures(names):
-    """Time response after the failure: body rates and spin rate (rad/s); thrusts (N)."""
+def response_figures(names, max_thrust_n=None):
+    """Time response after the failure: body rates and spin rate (rad/s); thrusts (N).
+
+    ``max_thrust_n`` (N, per rotor) draws each distinct thrust limit as a dashed line.
+    """
     from bokeh.models import Span
 
     rates = new_figure("Body rates after the failure", "time (s)", "rate (rad/s)",
@@ -583,9 +685,22 @@ def response_figures(names):
         c = COLOURS["series"][i % len(COLOURS["series"])]
         thrust.line(x="t", y=f"f{i}", source=s["series"], line_color=c, line_width=1.8,
                     legend_label=name)
+    if max_thrust_n is not None:
+        from bokeh.models import Label
+
+        for fmax in sorted({float(f) for f in np.asarray(max_thrust_n, float).ravel()}):
+            thrust.add_layout(Span(location=fmax, dimension="width",
+                                   line_color=COLOURS["limit"], line_dash="dashed",
+                                   line_width=1.5))
+            thrust.add_layout(Label(x=0, y=fmax, x_units="screen", text=f"max thrust "
+                                    f"{fmt(fmax, 3, 'N')}", text_font=FONT,
+                                    text_font_size="10px", x_offset=4, y_offset=2,
+                                    text_color=COLOURS["limit"]))
+    s["anchor"] = _source(t=[0.0], y=[0.0])
     for p in (rates, thrust):
-        _legend_style(p, "top_right")
+        p.scatter(x="t", y="y", source=s["anchor"], size=1, alpha=0.0)
         p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
+        _legend_right(p)
     return rates, thrust, s
 
 
@@ -630,7 +745,7 @@ def wheel_figure():
               fill_color=COLOURS["flag"], line_color="#000000", legend_label="flagged")
     p.scatter(x="h", y="ratio", source=s["marker"], marker="diamond", size=15,
               fill_color=COLOURS["marker"], line_color="#000000", legend_label="chosen h")
-    _legend_style(p, "top_left")
+    _legend_below(p)
     return p, s
 
 
@@ -655,34 +770,75 @@ def marker_data(h: float, ratio: float) -> dict[str, dict]:
 
 
 def map_figure(extent_m: float, quantity_label: str):
-    """A quantity over the placement grid (cells), rotor hubs and the part's base position."""
-    from bokeh.models import ColorBar, LinearColorMapper
+    """A quantity over the placement grid (cells), rotor hubs and the part's base position.
+
+    Also drawn: failed hubs (a cross), the threshold contour of the quantity (a dashed line,
+    from :func:`contour_lines`), and a tap tool whose selection a panel reads out. Returns
+    the figure, its sources, the colour mapper, the colour bar and the contour renderer.
+    """
+    from bokeh.models import ColorBar, LinearColorMapper, Range1d, TapTool
 
     mapper = LinearColorMapper(palette=list(TOL_IRIDESCENT), nan_color=MISSING, low=0, high=1)
     e = float(extent_m)
-    from bokeh.models import Range1d
-
-    p = new_figure(quantity_label, "right, \u2212y_B (m)", "forward, x_B (m)", width=430,
-                   height=380, match_aspect=True, x_range=Range1d(-e, e), y_range=Range1d(-e, e))
+    p = new_figure(quantity_label, "right, \u2212y_B (m)", "forward, x_B (m)", width=470,
+                   height=420, match_aspect=True, x_range=Range1d(-e, e), y_range=Range1d(-e, e))
     s = {"cells": _source(sx=[], sy=[], w=[], h=[], value=[], text=[]),
-         "hubs": _source(sx=[], sy=[], name=[]), "base": _source(sx=[], sy=[])}
-    p.rect(x="sx", y="sy", width="w", height="h", source=s["cells"],
-           fill_color={"field": "value", "transform": mapper}, line_color=None)
+         "hubs": _source(sx=[], sy=[], name=[]), "base": _source(sx=[], sy=[]),
+         "failed": _source(sx=[], sy=[], name=[])}
+    cells = p.rect(x="sx", y="sy", width="w", height="h", source=s["cells"],
+                   fill_color={"field": "value", "transform": mapper}, line_color=None,
+                   selection_line_color="#000000", selection_line_width=2,
+                   nonselection_fill_alpha=1.0)
+    p.add_tools(TapTool(renderers=[cells]))
+    contour = p.contour(x=[0.0, 1.0], y=[0.0, 1.0], z=[[0.0, 0.0], [0.0, 0.0]], levels=[0.5],
+                        line_color=COLOURS["threshold"], line_width=2.5, line_dash="dashed")
     p.scatter(x="sx", y="sy", source=s["hubs"], marker="circle", size=10, fill_color="white",
               line_color=COLOURS["limit"], legend_label="rotor hub")
+    p.scatter(x="sx", y="sy", source=s["failed"], marker="x", size=14, line_width=3,
+              line_color=COLOURS["cw"], legend_label="failed rotor")
     p.scatter(x="sx", y="sy", source=s["base"], marker="square_x", size=13, fill_color="white",
               line_color=COLOURS["marker"], line_width=2, legend_label="part as designed")
-    bar = ColorBar(color_mapper=mapper, width=10, title="", title_text_font=FONT,
+    from bokeh.models import LegendItem
+
+    p.legend[0].items.append(LegendItem(label="threshold", renderers=[contour.line_renderer],
+                                        visible=False))
+    bar = ColorBar(color_mapper=mapper, width=10, title=quantity_label, title_text_font=FONT,
+                   title_text_font_size="10px", title_text_font_style="normal",
                    major_label_text_font_size="10px")
     p.add_layout(bar, "right")
-    _legend_style(p, "bottom_left")
-    return p, s, mapper, bar
+    _legend_below(p)
+    return p, s, mapper, bar, contour
 
 
-def map_data(xs_m, ys_m, values, base_xy, hubs_xy, hub_names) -> tuple[dict, float, float]:
+def contour_lines(xs_m, ys_m, values, level):
+    """The ``level`` contour of a placement map, in plot coordinates (-y_B, x_B), m.
+
+    Returns bokeh's ``ContourData`` (lines only) for ``ContourRenderer.set_data``; no line
+    when ``level`` is None or not crossed. Contours from contourpy through bokeh.
+    """
+    from bokeh.plotting.contour import contour_data
+
+    xs = np.asarray(xs_m, float)
+    ys = np.asarray(ys_m, float)
+    v = np.asarray(values, float)
+    finite = v[np.isfinite(v)]
+    if (level is None or not finite.size or not finite.min() < level < finite.max()
+            or xs.size < 2 or ys.size < 2 or v.shape != (ys.size, xs.size)):
+        # a degenerate grid that draws no line at the level
+        return contour_data([0.0, 1.0], [0.0, 1.0], [[0.0, 0.0], [0.0, 0.0]], [0.5],
+                            want_fill=False)
+    # plot x is -y_B (ys reversed so it increases), plot y is x_B; z[row = x_B, col = -y_B]
+    px, py = -ys[::-1], xs
+    z = v[::-1, :].T
+    return contour_data(px, py, np.ma.masked_invalid(z), [float(level)], want_fill=False)
+
+
+def map_data(xs_m, ys_m, values, base_xy, hubs_xy, hub_names,
+             failed=()) -> tuple[dict, float, float]:
     """Cells of a ``(ny, nx)`` map in body x, y (m) with their values; also the colour range.
 
-    ``xs_m``, ``ys_m`` are the part's absolute x and y positions of the grid, in m.
+    ``xs_m``, ``ys_m`` are the part's absolute x and y positions of the grid, in m; ``failed``
+    names the hubs marked as failed.
     """
     xs = np.asarray(xs_m, float)
     ys = np.asarray(ys_m, float)
@@ -701,6 +857,11 @@ def map_data(xs_m, ys_m, values, base_xy, hubs_xy, hub_names) -> tuple[dict, flo
                   "value": rounded(v), "text": [fmt(val) for val in v.ravel()]},
         "hubs": {"sx": rounded(-hubs[:, 1]), "sy": rounded(hubs[:, 0]), "name": list(hub_names)},
         "base": {"sx": rounded([-base_xy[1]]), "sy": rounded([base_xy[0]])},
+        "failed": {"sx": [v for v, n in zip(rounded(-hubs[:, 1]), hub_names, strict=True)
+                          if n in failed],
+                   "sy": [v for v, n in zip(rounded(hubs[:, 0]), hub_names, strict=True)
+                          if n in failed],
+                   "name": [n for n in hub_names if n in failed]},
     }
     return data, lo, hi
 

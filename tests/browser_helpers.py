@@ -231,3 +231,206 @@ def wait_until(predicate, timeout_s: float, what: str, interval_s: float = 0.25)
             return last
         time.sleep(interval_s)
     raise AssertionError(f"timed out after {timeout_s:.0f} s waiting for {what} (last: {last!r})")
+
+
+#: JavaScript: every live Bokeh document of the page (from ``Bokeh.documents`` and the root
+#: views in ``Bokeh.index``; a document shown by a widget is only in the latter), as a count.
+DOC_COUNT_JS = """() => {
+  const B = window.Bokeh;
+  if (!B) return -1;
+  const docs = new Set(B.documents || []);
+  try {
+    for (const v of (B.index && B.index.roots) || []) {
+      if (v && v.model && v.model.document) docs.add(v.model.document);
+    }
+  } catch (e) { /* an older BokehJS has no index */ }
+  return docs.size;
+}"""
+
+#: JavaScript installed once per page: times from an input event to the first animation frame
+#: after the last change of a figure. A change is a change event of any live Bokeh document
+#: (data pushed in place), a new embed (the ``__rotorbookEmbeds`` redraw counter of a
+#: re-embedding panel) or a change of the watched panel's DOM outside the figures (its
+#: readouts); every figure drawn in a frame is painted before the next frame's
+#: callbacks run, so the frame after the one that saw the change is the repaint. It also keeps
+#: the smallest and largest height of a watched element between ``arm`` and the next ``arm``.
+LATENCY_HARNESS_JS = """() => {
+  if (window.__rbLatency) return true;
+  const H = window.__rbLatency = {armed: false, t0: null, paints: [], el: null,
+                                  hmin: Infinity, hmax: 0, docs: new Set(), pending: 0};
+  for (const type of ['pointerdown', 'mousedown', 'keydown', 'click', 'input', 'change']) {
+    document.addEventListener(type, (e) => {
+      if (H.armed && H.t0 === null) H.t0 = e.timeStamp;
+    }, true);
+  }
+  // text changes of the panel's readouts count too (a control may change only a table)
+  H.observer = new MutationObserver(() => { H.pending += 1; });
+  H.arm = (el) => { H.armed = true; H.t0 = null; H.paints = []; H.el = el || null;
+                    H.hmin = Infinity; H.hmax = 0; H.observer.disconnect();
+                    if (el) H.observer.observe(el, {subtree: true, childList: true,
+                                                    characterData: true}); };
+  let embeds = window.__rotorbookEmbeds || 0;
+  let seen = 0;
+  const hook = () => {
+    const B = window.Bokeh;
+    if (!B) return;
+    const all = new Set(B.documents || []);
+    try {
+      for (const v of (B.index && B.index.roots) || []) {
+        if (v && v.model && v.model.document) all.add(v.model.document);
+      }
+    } catch (e) { /* no index */ }
+    for (const d of all) {
+      if (H.docs.has(d)) continue;
+      H.docs.add(d);
+      d.on_change(() => { H.pending += 1; });
+    }
+  };
+  const frame = () => {
+    hook();
+    const now = performance.now();
+    const e = window.__rotorbookEmbeds || 0;
+    if (e !== embeds) { embeds = e; H.pending += 1; }
+    if (seen > 0 && H.armed) H.paints.push(now);
+    seen = H.pending; H.pending = 0;
+    if (H.el && H.armed) {
+      const h = H.el.getBoundingClientRect().height;
+      if (h < H.hmin) H.hmin = h;
+      if (h > H.hmax) H.hmax = h;
+    }
+    requestAnimationFrame(frame);
+  };
+  requestAnimationFrame(frame);
+  return true;
+}"""
+
+#: JavaScript: the state of the harness (input time, repaint times after it, heights).
+LATENCY_STATE_JS = """() => {
+  const H = window.__rbLatency;
+  return {t0: H.t0, paints: H.paints.filter((t) => H.t0 !== null && t >= H.t0),
+          now: performance.now(), hmin: H.hmin, hmax: H.hmax};
+}"""
+
+#: JavaScript: run Python in the notebook's kernel and return its printed output.
+KERNEL_EXEC_JS = """async (code) => {
+  const k = window.jupyterapp.shell.currentWidget.sessionContext.session.kernel;
+  const f = k.requestExecute({code: code, silent: false, store_history: false});
+  let out = '';
+  f.onIOPub = (m) => {
+    if (m.header.msg_type === 'stream') out += m.content.text;
+    if (m.header.msg_type === 'error') out += m.content.ename + ': ' + m.content.evalue;
+  };
+  await f.done;
+  return out;
+}"""
+
+
+def open_and_run(page, url: str, timeout_s: float = 180.0) -> None:
+    """Open a notebook in JupyterLab, wait for an idle kernel, run all cells, wait for the end."""
+    page.goto(url, timeout=60_000)
+    page.wait_for_function(
+        "() => window.jupyterapp && window.jupyterapp.shell.currentWidget"
+        " && window.jupyterapp.shell.currentWidget.sessionContext"
+        " && window.jupyterapp.shell.currentWidget.sessionContext.session"
+        " && window.jupyterapp.shell.currentWidget.sessionContext.session.kernel"
+        " && window.jupyterapp.shell.currentWidget.sessionContext.session.kernel.status"
+        " === 'idle'", timeout=60_000)
+    page.evaluate("() => { window.rbRunAllDone = undefined; window.jupyterapp.commands"
+                  ".execute('notebook:run-all-cells').then(ok => { window.rbRunAllDone ="
+                  " String(ok); }, err => { window.rbRunAllDone = 'error: ' + err; }); }")
+    page.wait_for_function("() => window.rbRunAllDone !== undefined",
+                           timeout=timeout_s * 1000)
+    done = page.evaluate("() => window.rbRunAllDone")
+    if done != "true":
+        errors = page.locator(".jp-OutputArea-output[data-mime-type="
+                              "'application/vnd.jupyter.stderr']").all_inner_texts()
+        raise AssertionError(f"run all cells did not succeed ({done}): {errors[:2]}")
+
+
+def panel_locator(page, title: str):
+    """The output area holding the live widget of the panel whose title starts with ``title``."""
+    return (page.locator(".jp-OutputArea-output")
+            .filter(has=page.locator(".widget-vbox"))
+            .filter(has_text=title))
+
+
+def measure(page, panel, act, settle_s: float = 0.6, timeout_s: float = 20.0) -> dict:
+    """Arm the harness on ``panel``, call ``act()``, wait until the figures settle.
+
+    Returns ``{"ms": input-to-repaint in ms or None when nothing redrew, "hmin", "hmax"}``.
+    """
+    page.evaluate(LATENCY_HARNESS_JS)
+    panel.evaluate("(el) => window.__rbLatency.arm(el)")
+    act()
+    deadline = time.monotonic() + timeout_s
+    last_n, last_change = 0, time.monotonic()
+    st = page.evaluate(LATENCY_STATE_JS)
+    while time.monotonic() < deadline:
+        st = page.evaluate(LATENCY_STATE_JS)
+        n = len(st["paints"])
+        if n != last_n:
+            last_n, last_change = n, time.monotonic()
+        elif n and time.monotonic() - last_change > settle_s:
+            break
+        time.sleep(0.05)
+    page.evaluate("() => { window.__rbLatency.armed = false; }")
+    ms = (st["paints"][-1] - st["t0"]) if st["paints"] and st["t0"] is not None else None
+    return {"ms": ms, "hmin": st["hmin"], "hmax": st["hmax"]}
+
+
+#: JavaScript: the data of the first ColumnDataSource holding column ``col`` (or, for
+#: ``"a,b"``, exactly the sorted columns a and b) in the live Bokeh documents of the page
+#: (widget documents first), with the number of documents.
+LIVE_DATA_JS = """(col) => {
+  const B = window.Bokeh;
+  if (!B) return null;
+  const docs = [];
+  try {
+    for (const v of (B.index && B.index.roots) || []) {
+      if (v && v.model && v.model.document && !docs.includes(v.model.document))
+        docs.push(v.model.document);
+    }
+  } catch (e) { /* no index */ }
+  for (const d of B.documents || []) if (!docs.includes(d)) docs.push(d);
+  const plain = (v) => (v && typeof v.length === 'number' && typeof v !== 'string')
+      ? Array.from(v, plain) : v;
+  for (const doc of docs) {
+    const models = doc.all_models ? Array.from(doc.all_models)
+        : Array.from(doc._all_models.values());
+    for (const m of models) {
+      if (m.type !== 'ColumnDataSource') continue;
+      const d = m.data instanceof Map ? Object.fromEntries(m.data) : m.data;
+      const exact = col.includes(',');
+      const hit = d && (exact ? Object.keys(d).sort().join(',') === col : col in d);
+      if (hit) {
+        const out = {};
+        for (const k of Object.keys(d).sort()) out[k] = plain(d[k]);
+        return {ndocs: docs.length, data: out};
+      }
+    }
+  }
+  return {ndocs: docs.length, data: null};
+}"""
+
+#: JavaScript: the notices shown over figures (visible Labels with text) and whether every
+#: data range of the live documents has finite bounds (the axes are drawn).
+NOTICES_AND_RANGES_JS = """() => {
+  const B = window.Bokeh;
+  const docs = new Set();
+  for (const v of (B.index && B.index.roots) || []) {
+    if (v && v.model && v.model.document) docs.add(v.model.document);
+  }
+  const notices = [];
+  const bad = [];
+  for (const doc of docs) {
+    for (const m of doc.all_models) {
+      if (m.type === 'Label' && m.visible && m.text && m.x_units === 'screen'
+          && m.y_units === 'screen') notices.push(m.text);
+      if (m.type === 'DataRange1d' || m.type === 'Range1d') {
+        if (!(Number.isFinite(m.start) && Number.isFinite(m.end) && m.end > m.start))
+          bad.push([m.id, m.start, m.end]);
+      }
+    }
+  }
+  return {notices: notices, bad_ranges: bad};
+}"""

@@ -1,10 +1,13 @@
-"""Real-browser tests: a workbook live in JupyterLab, and an HTML record opened offline.
+"""Real-browser tests: the workbooks live in JupyterLab, and an HTML record opened offline.
 
 JupyterLab runs on 127.0.0.1 with a random token (see ``browser_helpers``); Debian's Chromium,
-driven by Playwright, runs ``rotor_out.ipynb``, moves a control of the failure panel and sees
-the readouts and the plot data change. A record of the same workbook is then opened from
-``file://`` with every other request aborted. In both, any request to another host fails the
-test. Screenshots go to ``artifacts/browser/`` (git-ignored).
+driven by Playwright, runs each workbook and moves every control of its panels: the figure's
+data in the page changes with no new Bokeh document (figures are updated in place), the page
+logs no console error, and with every rotor failed the figures keep their axes and show the
+reason over the plot. In thrust-ratio mode every single failure of the survey quad has an
+equilibrium right after switching. A record is then opened from ``file://`` with every other
+request aborted. Any request to another host fails a test. Each wait is bounded (module
+constants). Screenshots go to ``artifacts/browser/`` (git-ignored).
 """
 
 from __future__ import annotations
@@ -19,10 +22,14 @@ from browser_helpers import (
     CANVASES_JS,
     CHROMIUM,
     CHROMIUM_ARGS,
+    LIVE_DATA_JS,
+    NOTICES_AND_RANGES_JS,
     ROOT,
     SOURCE_DATA_JS,
     Offline,
     cache_dir,
+    open_and_run,
+    panel_locator,
     start_lab,
     wait_until,
 )
@@ -60,116 +67,220 @@ def browser():
             b.close()
 
 
-def _failure_panel(page):
-    """The output holding the failure panel's widget (its title and its sliders)."""
-    return (page.locator(".jp-OutputArea-output")
-            .filter(has=page.locator(".widget-slider"))
-            .filter(has_text="Rotor failure:"))
+class LivePage:
+    """One notebook open and run in its own workspace, with console errors and requests noted."""
+
+    def __init__(self, browser, lab, nb: str) -> None:
+        self.offline = Offline(allow_file=False)
+        self.sockets: list[str] = []
+        self.console_errors: list[str] = []
+        self.context = browser.new_context(viewport={"width": 1400, "height": 1900})
+        self.context.route("**/*", self.offline)
+        self.page = page = self.context.new_page()
+        page.on("websocket", lambda ws: self.sockets.append(ws.url))
+        page.on("console", lambda m: self.console_errors.append(m.text)
+                if m.type == "error" else None)
+        page.on("pageerror", lambda e: self.console_errors.append(f"page error: {e}"))
+        ws = nb.removesuffix(".ipynb")
+        t0 = time.monotonic()
+        open_and_run(page, f"{lab.url}/lab/workspaces/{ws}/tree/workbooks/{nb}?reset&token="
+                     f"{lab.token}", timeout_s=RUN_ALL_S)
+        self.run_s = time.monotonic() - t0
+
+    def panel(self, title: str):
+        p = panel_locator(self.page, title).first
+        p.wait_for(state="attached", timeout=PAGE_MS)
+        p.evaluate("(el) => el.scrollIntoView({block: 'start'})")
+        p.wait_for(timeout=PAGE_MS)
+        wait_until(lambda: len([c for c in p.evaluate(CANVASES_JS)
+                                if c["cw"] > 0 and c["ch"] > 0]) > 0,
+                   UPDATE_S, f"a Bokeh canvas in the {title} panel")
+        return p
+
+    def data(self, col: str) -> dict:
+        return self.page.evaluate(LIVE_DATA_JS, col)
+
+    def changed(self, col: str, before: dict, what: str) -> dict:
+        """Wait until the source holding ``col`` differs from ``before``; no new document."""
+        after = wait_until(lambda: (d := self.data(col))["data"] != before["data"] and d,
+                           UPDATE_S, what)
+        assert after["ndocs"] == before["ndocs"], (
+            f"{what}: a new Bokeh document was embedded ({before['ndocs']} -> "
+            f"{after['ndocs']})")
+        return after
+
+    def close(self) -> None:
+        self.context.close()
+        assert not self.console_errors, f"console errors: {self.console_errors[:5]}"
+        assert not self.offline.aborted, f"the page tried other hosts: {self.offline.aborted}"
+        assert all(re.match(r"wss?://(127\.0\.0\.1|localhost)[:/]", u)
+                   for u in self.sockets), self.sockets
+
+
+def _press(panel, label: str, key: str = "ArrowLeft") -> None:
+    s = panel.locator(".widget-slider:not(.mod-disabled)").filter(
+        has_text=re.compile(rf"^{re.escape(label)}")).first
+    h = s.locator(".noUi-handle")
+    now = float(h.get_attribute("aria-valuenow"))
+    lo = float(h.get_attribute("aria-valuemin"))
+    h.focus()
+    h.press("ArrowRight" if now <= lo else key)
 
 
 def _relaxed_hover_text(panel) -> str:
-    t = panel.locator("table.rb-kv").filter(has_text="Relaxed hover").first
-    return t.inner_text(timeout=PAGE_MS)
+    return panel.locator("table.rb-kv").filter(has_text="Relaxed hover").first.inner_text(
+        timeout=PAGE_MS)
 
 
-def _thrust_data(page):
-    return page.evaluate(SOURCE_DATA_JS, "thrust")
+def _checkbox(panel, name: str):
+    return panel.locator(".widget-checkbox").filter(has_text=name).locator("input").first
 
 
-def test_rotor_out_live_in_lab(lab, browser):
-    t0 = time.monotonic()
-    offline = Offline(allow_file=False)
-    sockets: list[str] = []
-    console_errors: list[str] = []
-    # tall enough for the whole failure panel (controls, readouts, figures) in one screenshot
-    context = browser.new_context(viewport={"width": 1400, "height": 1900})
-    context.route("**/*", offline)
-    page = context.new_page()
-    page.on("websocket", lambda ws: sockets.append(ws.url))
-    page.on("console", lambda m: console_errors.append(m.text) if m.type == "error" else None)
+def _set_failed(lp: LivePage, panel, names, rotors) -> None:
+    """Tick exactly ``names``: untick first (never all at once ticked), then tick."""
+    for n in rotors:
+        box = _checkbox(panel, n)
+        if box.is_checked() != (n in names):
+            if n in names:
+                continue
+            box.click()
+    for n in names:
+        box = _checkbox(panel, n)
+        if not box.is_checked():
+            box.click()
+    want = "failed: " + ", ".join(r for r in rotors if r in names)
+    wait_until(lambda: want in _relaxed_hover_text(panel), UPDATE_S,
+               f"the failure panel to show {want}")
+
+
+ROTORS = ["front_left", "front_right", "rear_right", "rear_left"]
+
+
+def test_failure_panel_live(lab, browser):
+    lp = LivePage(browser, lab, "rotor_out.ipynb")
     try:
-        page.goto(f"{lab.url}/lab/tree/workbooks/rotor_out.ipynb?token={lab.token}",
-                  timeout=PAGE_MS)
-        page.wait_for_function(
-            "() => window.jupyterapp && window.jupyterapp.shell.currentWidget"
-            " && window.jupyterapp.shell.currentWidget.sessionContext"
-            " && window.jupyterapp.shell.currentWidget.sessionContext.session"
-            " && window.jupyterapp.shell.currentWidget.sessionContext.session.kernel"
-            " && window.jupyterapp.shell.currentWidget.sessionContext.session.kernel.status"
-            " === 'idle'", timeout=PAGE_MS)
-        t_open = time.monotonic() - t0
-        page.evaluate("() => { window.rbRunAll = window.jupyterapp.commands"
-                      ".execute('notebook:run-all-cells').then(ok => { window.rbRunAllDone ="
-                      " String(ok); }, err => { window.rbRunAllDone = 'error: ' + err; }); }")
-        page.wait_for_function("() => window.rbRunAllDone !== undefined",
-                               timeout=RUN_ALL_S * 1000)
-        done = page.evaluate("() => window.rbRunAllDone")
-        errors = page.locator(".jp-OutputArea-output[data-mime-type="
-                              "'application/vnd.jupyter.stderr']").all_inner_texts()
-        tracebacks = [e for e in errors if "Traceback" in e or "Error" in e]
-        assert done == "true", f"run all cells did not succeed ({done}): {tracebacks[:2]}"
-        t_run = time.monotonic() - t0 - t_open
-
-        panel = _failure_panel(page)
-        panel.first.wait_for(timeout=PAGE_MS)
-        assert panel.count() == 1, "expected one failure panel widget in the page"
-        panel.scroll_into_view_if_needed()
-        # BokehJS came from kit.panels.serve and drew the panel's figures
-        page.wait_for_function("() => window.Bokeh !== undefined && window.Bokeh.documents"
-                               " && window.Bokeh.documents.length > 0", timeout=PAGE_MS)
-        canvases = wait_until(lambda: [c for c in panel.evaluate(CANVASES_JS)
-                                       if c["cw"] > 0 and c["ch"] > 0],
-                              UPDATE_S, "a Bokeh canvas of non-zero size in the failure panel")
-        assert len(canvases) >= 5, f"expected the panel's 5 figures to draw, saw {canvases}"
-
-        before_text = _relaxed_hover_text(panel)
-        before = _thrust_data(page)
-        assert before and before["data"], f"no thrust source in Bokeh.documents: {before}"
-
-        # 'thrust ratios' mode enables the ratio sliders of the working rotors
-        panel.locator(".widget-toggle-button", has_text="thrust ratios").click()
-        handle = panel.locator(".widget-slider:not(.mod-disabled)").filter(
-            has_text=re.compile(r"^front_right")).locator(".noUi-handle")
-        handle.wait_for(timeout=UPDATE_S * 1000)
-        wait_until(lambda: _thrust_data(page)["embeds"] > before["embeds"], UPDATE_S,
-                   "the panel to redraw after switching to thrust ratios")
-        mid_text = _relaxed_hover_text(panel)
-        mid = _thrust_data(page)
-
-        slider = panel.locator(".widget-slider").filter(has_text=re.compile(r"^front_right"))
-        readout = slider.locator(".widget-readout")
-        r0 = readout.inner_text()
-        handle.focus()
-        page.keyboard.press("ArrowLeft" if r0.strip() == "1.00" else "ArrowRight")
-        wait_until(lambda: readout.inner_text() != r0, UPDATE_S,
-                   f"the front_right slider readout to move from {r0}")
-        after = wait_until(lambda: (d := _thrust_data(page))["embeds"] > mid["embeds"] and d,
-                           UPDATE_S, "the panel to redraw after the slider moved")
-        after_text = wait_until(lambda: (t := _relaxed_hover_text(panel)) != mid_text and t,
-                                UPDATE_S, "the relaxed-hover readout to change")
-        assert after["data"]["thrust"] != mid["data"]["thrust"], (
-            f"thrust bars did not change: {mid['data']['thrust']} -> {after['data']['thrust']}")
-        assert after_text != before_text
-        # redraws replace the panel's figure: BokehJS must not keep the old documents
-        assert after["ndocs"] <= before["ndocs"], (
-            f"Bokeh documents piled up: {before['ndocs']} -> {after['ndocs']}")
+        panel = lp.panel("Rotor failure")
         canvases = [c for c in panel.evaluate(CANVASES_JS) if c["cw"] > 0 and c["ch"] > 0]
-        assert len(canvases) >= 5, f"figures did not redraw after the change: {canvases}"
-        t_interact = time.monotonic() - t0 - t_open - t_run
-
+        assert len(canvases) >= 5, f"expected the panel's 5 figures to draw, saw {canvases}"
+        height0 = panel.evaluate("(el) => el.getBoundingClientRect().height")
+        # failed rotors: a checkbox per rotor
+        d0 = lp.data("thrust")
+        assert d0["data"], d0
+        _set_failed(lp, panel, ["front_left"], ROTORS)
+        d1 = lp.changed("thrust", d0, "thrust bars after failing front_left only")
+        # equilibrium mode toggle
+        # (the ratios start at the least-effort member: the same thrusts, sliders enabled)
+        panel.locator(".widget-toggle-button", has_text="thrust ratios").click()
+        panel.locator(".widget-slider:not(.mod-disabled)").filter(
+            has_text=re.compile(r"^rear_left")).first.wait_for(timeout=UPDATE_S * 1000)
+        lp.page.wait_for_timeout(500)
+        d2 = lp.data("thrust")
+        assert d2["ndocs"] == d1["ndocs"]
+        # a ratio slider
+        _press(panel, "rear_left")
+        d3 = lp.changed("thrust", d2, "thrust bars after a ratio slider moved")
+        # simulate (button), then the horizon slider marks the response out of date
+        r0 = lp.data("spin")
+        panel.locator("button", has_text="simulate").click()
+        r1 = lp.changed("spin", r0, "the time response after 'simulate'")
+        assert r1["data"]["t"], "no time response drawn"
+        _press(panel, "horizon", "ArrowRight")
+        lp.changed("spin", r1, "the time response cleared after the horizon moved")
+        # simulate on change
+        panel.locator(".widget-checkbox").filter(has_text="simulate on change").locator(
+            "input").click()
+        # thrust-ratio mode: every single failure has an equilibrium after switching
+        for name in ROTORS:
+            _set_failed(lp, panel, [name], ROTORS)
+            text = _relaxed_hover_text(panel)
+            assert "free directions" in text, f"no equilibrium after failing {name}: {text}"
+        d4 = lp.data("thrust")
+        # no equilibrium: every rotor failed -> a notice over the figures, axes kept
+        for name in ROTORS:
+            box = _checkbox(panel, name)
+            if not box.is_checked():
+                box.click()
+        lp.changed("thrust", d4, "thrust bars emptied with every rotor failed")
+        st = wait_until(lambda: (x := lp.page.evaluate(NOTICES_AND_RANGES_JS)) and any(
+            "every rotor has failed" in t for t in x["notices"]) and x, UPDATE_S,
+            "the notice 'every rotor has failed' over the figures")
+        assert not st["bad_ranges"], f"a figure lost its axes: {st['bad_ranges']}"
+        canvases = [c for c in panel.evaluate(CANVASES_JS) if c["cw"] > 0 and c["ch"] > 0]
+        assert len(canvases) >= 5, canvases
+        # and back: the notice goes away
+        _checkbox(panel, "rear_left").click()
+        wait_until(lambda: not any("every rotor" in t for t in lp.page.evaluate(
+            NOTICES_AND_RANGES_JS)["notices"]), UPDATE_S, "the notice to go away")
+        height1 = panel.evaluate("(el) => el.getBoundingClientRect().height")
         ARTIFACTS.mkdir(parents=True, exist_ok=True)
         panel.evaluate("(el) => el.scrollIntoView({block: 'start'})")
-        page.wait_for_timeout(300)  # let the notebook's windowed list settle after scrolling
-        page.screenshot(path=str(ARTIFACTS / "rotor_out_lab.png"))
-        print(f"\nlab: open {t_open:.1f} s, run all {t_run:.1f} s, interact {t_interact:.1f} s;"
-              f" readout {r0} -> {readout.inner_text()}; thrust {mid['data']['thrust']} -> "
-              f"{after['data']['thrust']}; {len(canvases)} canvases; Bokeh documents "
-              f"{before['ndocs']} -> {after['ndocs']}; sockets {sockets}; "
-              f"console errors {console_errors}")
+        lp.page.wait_for_timeout(300)
+        lp.page.screenshot(path=str(ARTIFACTS / "rotor_out_lab.png"))
+        print(f"\nrotor_out: run {lp.run_s:.1f} s; thrust {d0['data']['thrust']} -> "
+              f"{d3['data']['thrust']}; panel height {height0:.0f} -> {height1:.0f} px; "
+              f"documents {d0['ndocs']}")
     finally:
-        context.close()
-    assert not offline.aborted, f"the page tried to reach other hosts: {offline.aborted}"
-    assert all(re.match(r"wss?://(127\.0\.0\.1|localhost)[:/]", u) for u in sockets), sockets
+        lp.close()
+
+
+def test_hover_workbook_panels_live(lab, browser):
+    lp = LivePage(browser, lab, "hover.ipynb")
+    try:
+        ov = lp.panel("Design overview")
+        n0 = lp.data("label_sy")
+        table0 = ov.locator("table.rb-kv").filter(has_text="Parts").first.inner_text()
+        ov.locator(".widget-dropdown select").first.select_option(label="mass")
+        wait_until(lambda: ov.locator("table.rb-kv").filter(has_text="Parts").first
+                   .inner_text() != table0, UPDATE_S, "the parts table to re-sort")
+        assert lp.data("label_sy")["ndocs"] == n0["ndocs"]
+        hv = lp.panel("Hover")
+        d0 = lp.data("threshold")
+        _press(hv, "payload", "ArrowRight")
+        lp.changed("threshold", d0, "hover thrust bars after the payload moved")
+    finally:
+        lp.close()
+
+
+def test_wheel_panel_live(lab, browser):
+    lp = LivePage(browser, lab, "momentum_wheel.ipynb")
+    try:
+        wp = lp.panel("Momentum wheel")
+        m0 = lp.data("h,ratio")
+        _press(wp, "wheel momentum")
+        lp.changed("h,ratio", m0, "the wheel marker after the slider moved")
+        sel = wp.locator(".widget-dropdown select").first
+        opts = sel.locator("option").all_inner_texts()
+        c0 = lp.data("fixed")
+        sel.select_option(label=opts[-1])
+        lp.changed("fixed", c0, "the wheel curve after another case")
+    finally:
+        lp.close()
+
+
+def test_placement_panel_live(lab, browser):
+    lp = LivePage(browser, lab, "design_review.ipynb")
+    try:
+        pp = lp.panel("Placement")
+        v0 = lp.data("value")
+        pp.locator(".widget-dropdown").filter(has_text="map").locator("select").first \
+            .select_option(label="spin rate (rad/s)")
+        v1 = lp.changed("value", v0, "the map after another quantity")
+        pp.locator(".widget-toggle-button", has_text="no failure").click()
+        lp.changed("value", v1, "the map after showing the no-failure case")
+        # a click on the middle of the map reads out that cell
+        canvas = pp.locator(".bk-Canvas, canvas").first
+        box = pp.evaluate("""(el) => { let best = null; const walk = (n) => { if (!n) return;
+            if (n.tagName === 'CANVAS') { const r = n.getBoundingClientRect();
+              if (!best || r.width * r.height > best.width * best.height) best = r; }
+            if (n.shadowRoot) walk(n.shadowRoot); for (const c of n.children || []) walk(c); };
+            walk(el); return best && {x: best.x, y: best.y, w: best.width, h: best.height}; }""")
+        assert box, canvas
+        # the plot frame sits left of the colour bar and above the legend: aim at its centre
+        lp.page.mouse.click(box["x"] + 0.45 * box["w"], box["y"] + 0.42 * box["h"])
+        wait_until(lambda: "clicked cell" in pp.inner_text(), UPDATE_S,
+                   "the readout of the clicked cell")
+    finally:
+        lp.close()
 
 
 @pytest.fixture(scope="module")

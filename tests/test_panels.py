@@ -103,7 +103,7 @@ def test_failure_panel_follows_analyse_case(survey):
     assert p.sources["circle"]["path"].data["x"][0] == pytest.approx(
         1e3 * c.eq.circle_radius_m, rel=1e-5)
     # another failure set
-    p.failed.value = ("front_left", "rear_right")
+    p.set_failed(("front_left", "rear_right"))
     c2 = analyse_case(veh, ("front_left", "rear_right"))
     np.testing.assert_allclose(p.sources["thrust"]["bars"].data["thrust"], c2.eq.thrust_n,
                                rtol=1e-4, atol=1e-6)
@@ -128,11 +128,12 @@ def test_failure_panel_thrust_ratio_sliders(survey):
 
 def test_failing_every_rotor_shows_a_message(survey):
     p = FailurePanel(survey, failed=("front_left",), simulate=False)
-    p.failed.value = tuple(survey.rotor_names)
+    p.set_failed(survey.rotor_names)
     assert "every rotor has failed" in p.message
     assert "every rotor has failed" in p._repr_mimebundle_()["text/html"]
-    assert p.sources["thrust"]["bars"].data["thrust"] == []
-    p.failed.value = ("front_left",)  # and it recovers
+    assert p.sources["thrust"]["bars"].data["thrust"] == [0.0] * 4  # bars kept at zero
+    assert p.sources["thrust"]["bars"].data["colour"] == [plots.COLOURS["failed"]] * 4
+    p.set_failed(("front_left",))  # and it recovers
     assert p.message == "" and p.view.eq.found
 
 
@@ -176,10 +177,115 @@ def test_wheel_panel_marker_and_sizing(wheel_quad, small_study):
     _snapshot_ok(p, "failed: left, right")
 
 
-def test_wheel_panel_without_a_wheel(survey):
+def test_wheel_panel_without_a_wheel_shows_no_figure(survey):
     p = WheelPanel(survey)
     assert "no [wheel]" in p.message and p.h.disabled
-    _snapshot_ok(p, "no failure")
+    assert p.figure_widget is None and not p.show_figure
+    text = p._repr_mimebundle_()["text/html"]
+    assert "no [wheel]" in text and "rb-figure" not in text
+
+
+def test_sliders_update_on_release(survey, wheel_quad, small_study):
+    """Throttling rule: every slider of every panel updates on release only."""
+    import ipywidgets as w
+
+    panels = [HoverPanel(survey), FailurePanel(survey, simulate=False),
+              WheelPanel(wheel_quad, study=small_study), PlacementPanel(survey, points=3)]
+    sliders = [c for p in panels for c in p.controls.values()
+               if isinstance(c, w.FloatSlider | w.IntSlider)]
+    assert len(sliders) >= 8
+    assert not [s.description for s in sliders if s.continuous_update]
+
+
+def _patches(panel, monkeypatch):
+    """Record the messages the panel's live figure sends (jupyter_bokeh patch messages)."""
+    sent = []
+    monkeypatch.setattr(panel.figure_widget, "send",
+                        lambda content, buffers=None: sent.append(content))
+    return sent
+
+
+def test_a_change_pushes_one_patch_and_never_re_embeds(survey, monkeypatch):
+    import json
+
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    bundle = p.figure_widget.render_bundle
+    sent = _patches(p, monkeypatch)
+    before = list(p.sources["thrust"]["bars"].data["thrust"])
+    p.set_failed(("front_right",))
+    assert p.sources["thrust"]["bars"].data["thrust"] != before
+    # one PATCH-DOC message (header, metadata, content, then its buffers), no new bundle
+    headers = [json.loads(m["payload"]) for m in sent if "payload" in m
+               and '"msgtype"' in str(m["payload"])]
+    assert [h["msgtype"] for h in headers] == ["PATCH-DOC"]
+    assert p.figure_widget.render_bundle is bundle
+    # nothing changed: nothing sent
+    sent.clear()
+    p.refresh()
+    assert sent == []
+
+
+def test_thrust_ratio_mode_resets_ratios_for_every_single_failure(survey):
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    p.mode.value = "thrust ratios"
+    assert p.view.eq.found
+    for name in survey.rotor_names:
+        p.set_failed((name,))
+        ratio = p.thrust_ratio()
+        assert name not in ratio and min(ratio.values()) > 0, ratio
+        assert p.view.eq.found, (name, p.message)
+        assert p.message == "" and not p.notices["thrust"].visible
+    # one checkbox at a time, as a user ticks them
+    p.failed_boxes["front_left"].value = False
+    p.failed_boxes["front_left"].value = True
+    assert p.failed_set() == ("front_left", survey.rotor_names[-1]) or p.failed_set()
+
+
+def test_no_equilibrium_keeps_the_axes_and_says_so_over_the_figure(survey):
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    p.set_failed(survey.rotor_names)
+    note = p.notices["poles"]
+    assert note.visible and "every rotor has failed" in note.text
+    # the invisible anchor point keeps each data range defined
+    assert p.sources["poles"]["anchor"].data == {"re": [0.0], "im": [0.0]}
+    assert p.sources["circle"]["anchor"].data == {"x": [0.0], "y": [0.0]}
+    p.set_failed(("front_left",))
+    assert not note.visible and note.text == ""
+
+
+def test_simulate_button_is_disabled_while_it_runs(survey, monkeypatch):
+    import kit.analysis.simulate as sim_mod
+
+    p = FailurePanel(survey, failed=("front_left",), simulate=False, horizon_s=0.5)
+    seen = []
+    real = sim_mod.simulate_failure
+
+    def spy(*a, **k):
+        seen.append(p.simulate_button.disabled)
+        return real(*a, **k)
+
+    monkeypatch.setattr(sim_mod, "simulate_failure", spy)
+    p.simulate()
+    assert seen == [True] and not p.simulate_button.disabled
+
+
+def test_failure_thrust_legend_has_no_threshold(survey):
+    p = FailurePanel(survey, simulate=False)
+    labels = [i.label.value for i in p.thrust_fig.legend[0].items
+              if hasattr(i.label, "value")]
+    assert "review threshold" not in labels and "limit" in labels
+
+
+def test_stale_design_file_is_noticed(survey, tmp_path):
+    src = (DESIGNS / "survey_quad.toml").read_text()
+    path = tmp_path / "quad.toml"
+    path.write_text(src)
+    p = HoverPanel(load(path))
+    assert p.stale_message == ""
+    path.write_text(src + "\n# edited\n")
+    p.payload.value = p.payload.step
+    assert "changed since it was loaded" in p.stale_message
+    assert "changed since it was loaded" in p._repr_mimebundle_()["text/html"]
 
 
 def test_placement_panel(survey):
@@ -197,9 +303,42 @@ def test_placement_panel(survey):
     np.testing.assert_allclose(p.sources["cells"].data["value"],
                                ref.failure.spin_rate_rad_s.ravel(), rtol=1e-5)
     assert p.mapper.low == pytest.approx(np.nanmin(ref.failure.spin_rate_rad_s), rel=1e-5)
+    # the failed hub is marked, the review threshold drawn as a contour where it is crossed
+    assert p.sources["failed"].data["name"] == ["front_left"]
+    thr = p.view.threshold
+    assert thr == pytest.approx(survey.review.max_spin_fraction_of_gyro
+                                * survey.review.gyro_full_scale_rad_s)
+    crossed = np.nanmin(ref.failure.spin_rate_rad_s) < thr < np.nanmax(ref.failure.spin_rate_rad_s)
+    xs = p.contour.line_renderer.data_source.data["xs"]
+    assert bool(len(xs) and len(xs[0])) == crossed
+    # a clicked cell is read out
+    p.sources["cells"].selected.indices = [4]
+    assert "clicked cell" in p._cell.value and p.sources["cells"].data["text"][4] in p._cell.value
+    assert p.colour_bar.title == "spin rate (rad/s)"
     p.points.value = 5
     assert "press 'compute map'" in p.readout_html
     _snapshot_ok(p, "battery", "spin rate (rad/s)")
+
+
+def test_placement_starts_with_the_heaviest_part(survey):
+    p = PlacementPanel(survey, points=3)
+    heaviest = max(survey.parts, key=lambda q: q.mass_kg)
+    assert p.part.value == heaviest.name
+
+
+def test_placement_button_disabled_while_computing(survey, monkeypatch):
+    import kit.panels.placement as pl
+
+    p = PlacementPanel(survey, part="battery", points=3, span_m=0.01)
+    seen = []
+
+    def fake_sweep(*a, **k):
+        seen.append(p.compute_button.disabled)
+        raise ValueError("stopped by the test")
+
+    monkeypatch.setattr(pl, "placement_sweep", fake_sweep)
+    p.compute()
+    assert seen == [True] and not p.compute_button.disabled
 
 
 def test_text_progress():

@@ -1,5 +1,6 @@
 """kit.plots: palette, rounding, figure data against kit.massprops, and static embedding."""
 
+import html
 import json
 import re
 from dataclasses import replace
@@ -96,3 +97,77 @@ def test_embedder_patches_only_changed_sources_and_matches_a_full_serialisation(
     fig.title.text = "another title"  # any other change: whole document again
     assert emb.doc_json()["roots"][0]["attributes"]["title"]["attributes"]["text"] == \
         "another title"
+
+
+def _legend_labels(fig) -> list[str]:
+    out = []
+    for item in fig.legend[0].items:
+        lab = item.label
+        out.append(getattr(lab, "value", None) or getattr(lab, "field", None))
+    return out
+
+
+def test_rotor_labels_use_the_font_as_a_value_not_a_data_field():
+    from bokeh.models import LabelSet
+
+    fig, _src = plots.top_view_figure(0.3)
+    (labels,) = [r for r in fig.center if isinstance(r, LabelSet)]
+    # bokeh reads a bare string of a data spec as a column name (common practice, no source:
+    # bokeh's "Specifying visual properties" user guide)
+    assert labels.text_font.value == plots.FONT
+    assert getattr(labels.text_font, "field", None) is None
+
+
+def test_legends_only_for_what_is_drawn():
+    no_wheel, _ = plots.top_view_figure(0.3, wheel=False)
+    with_wheel, _ = plots.top_view_figure(0.3, wheel=True)
+    assert "wheel" not in _legend_labels(no_wheel) and "wheel" in _legend_labels(with_wheel)
+    bare, _ = plots.thrust_figure(["a"], threshold=False)
+    assert "review threshold" not in _legend_labels(bare)
+    # every legend sits outside the plot area (below or right), never over the data
+    figs = [plots.torque_figure()[0], plots.poles_figure()[0], plots.circle_figure()[0],
+            *plots.response_figures(["a"], [5.0])[:2], plots.wheel_figure()[0],
+            plots.map_figure(0.3, "q")[0], bare, no_wheel]
+    for f in figs:
+        assert f.legend[0] in (list(f.below) + list(f.right)), f.title.text
+
+
+def test_notice_over_a_figure_and_anchor_keep_axes():
+    fig, src = plots.poles_figure()
+    assert src["anchor"].data == {"re": [0.0], "im": [0.0]}
+    note = plots.add_notice(fig)
+    assert not note.visible
+    plots.set_notice(note, "no equilibrium: the moment balance has no solution")
+    assert note.visible and note.text.startswith("no equilibrium")
+    plots.set_notice(note, "")
+    assert not note.visible
+
+
+def test_set_data_sends_nothing_for_the_same_data():
+    fig, src = plots.thrust_figure(["a"])
+    events = []
+    plots.in_document(fig).document.on_change(events.append)
+    data = plots.thrust_data(["a"], [1.0], [2.0])["bars"]  # threshold nan
+    plots.set_data(src["bars"], data)
+    plots.set_data(src["bars"], dict(data))
+    assert len(events) == 1
+
+
+def test_threshold_contour_of_a_map():
+    # z = x_B on a 3 x 3 grid: the 0.5 contour is the line x_B = 0.5, i.e. plot y = 0.5
+    xs, ys = np.array([0.0, 1.0, 2.0]), np.array([-1.0, 0.0, 1.0])
+    v = np.tile(xs, (3, 1))  # rows: y, columns: x
+    cd = plots.contour_lines(xs, ys, v, 0.5)
+    line = cd.line_data
+    assert len(line.xs) == 1
+    np.testing.assert_allclose(line.ys[0], 0.5)
+    np.testing.assert_allclose(sorted(line.xs[0]), [-1.0, 0.0, 1.0])
+    none = plots.contour_lines(xs, ys, v, 5.0).line_data.xs  # never crossed: no point drawn
+    assert sum(len(x) for x in none) == 0
+
+
+def test_static_figure_says_what_to_do_when_its_script_cannot_run():
+    fig, _ = plots.thrust_figure(["a"])
+    text = plots.embed_html(plots.in_document(fig))
+    assert html.escape(plots.UNTRUSTED_NOTICE) in text and "Trust Notebook" in text
+    assert "-untrusted\");\nif (note) note.remove();" in text

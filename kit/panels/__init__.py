@@ -16,7 +16,10 @@ ComparePanel       two revisions: a chosen quantity per case, one case's thrusts
 
 BokehJS comes once from the local Bokeh installation: :mod:`kit.panels.serve` is a Jupyter
 server extension that serves it, and every figure output carries a few lines that load it
-from there when the page does not have it yet (a record embeds it itself).
+from there when the page does not have it yet (a record embeds it itself). The setup cell
+(:func:`setup`) loads it before any panel is shown: the live figures are jupyter_bokeh
+``BokehModel`` widgets, built once per panel and updated in place (see
+:mod:`kit.panels.base`).
 """
 
 from __future__ import annotations

@@ -9,7 +9,13 @@ scale is fixed by the weight), "least effort" picks the member of smallest ``sum
 
 The nonlinear time response (:func:`kit.analysis.simulate.simulate_failure`) costs 0.2 to 1.5 s,
 so a slider change marks it out of date and the "simulate" button (or "simulate on change")
-recomputes it; the panel simulates once when it is built, so a record shows it.
+recomputes it; the panel simulates once when it is built, so a record shows it. The button is
+disabled while the simulation runs.
+
+Failed rotors are chosen with one checkbox per rotor. In thrust-ratio mode a change of the
+failed set resets the ratio sliders to the least-effort equilibrium of the new set (a rotor
+that was failed must not keep the ratio 0 it had then). When there is no equilibrium the
+figures keep their axes and show the reason over the plot area.
 """
 
 from __future__ import annotations
@@ -136,19 +142,25 @@ class FailurePanel(Panel):
                     else thrust_ratio
             else:
                 failed = (veh.names[0],)
-        self.thrust_fig, st = plots.thrust_figure(veh.names, "Thrusts at the equilibrium")
+        self.thrust_fig, st = plots.thrust_figure(veh.names, "Thrusts at the equilibrium",
+                                                  threshold=False)
         self.poles_fig, sp = plots.poles_figure()
         self.circle_fig, sc = plots.circle_figure()
-        self.rates_fig, self.thrust_t_fig, sr = plots.response_figures(veh.names)
+        self.rates_fig, self.thrust_t_fig, sr = plots.response_figures(
+            veh.names, veh.max_thrust_n)
         self.sources = {"thrust": st, "poles": sp, "circle": sc, "response": sr}
+        self.notices = {k: plots.add_notice(f) for k, f in (
+            ("thrust", self.thrust_fig), ("poles", self.poles_fig),
+            ("circle", self.circle_fig), ("rates", self.rates_fig),
+            ("thrust_t", self.thrust_t_fig))}
         self.layout = plots.in_document(column(
             row(self.thrust_fig, self.poles_fig, self.circle_fig),
             row(self.rates_fig, self.thrust_t_fig)))
 
         style = {"description_width": "initial"}
-        self.failed = w.SelectMultiple(options=list(veh.names), value=tuple(failed),
-                                       description="failed rotors", rows=min(len(veh.names), 6),
-                                       style=style)
+        self.failed_boxes = {n: w.Checkbox(value=n in set(failed), description=n, indent=False,
+                                           layout=w.Layout(width="auto"))
+                             for n in veh.names}
         self.mode = w.ToggleButtons(options=[LEAST_EFFORT, RATIOS],
                                     value=RATIOS if thrust_ratio else LEAST_EFFORT,
                                     description="equilibrium", style=style)
@@ -166,19 +178,24 @@ class FailurePanel(Panel):
                                         tooltip="run the nonlinear simulation of the failure")
         self.auto_simulate = w.Checkbox(value=False, description="simulate on change",
                                         indent=False)
-        self.controls = {"failed": self.failed, "mode": self.mode, "horizon": self.horizon,
+        self.controls = {**{f"failed:{n}": b for n, b in self.failed_boxes.items()},
+                         "mode": self.mode, "horizon": self.horizon,
                          "auto_simulate": self.auto_simulate,
                          **{f"ratio:{n}": s for n, s in self.ratios.items()}}
         self.view: FailureView | None = None
         self.sim = None
         self.sim_message = "not simulated yet"
         self.last_simulate_s = 0.0
-        self._observe(self.failed, self.horizon, *self.ratios.values())
+        self._observe(self.horizon, *self.ratios.values())
+        for b in self.failed_boxes.values():
+            b.observe(self._on_failed, names="value")
         self.mode.observe(self._on_mode, names="value")
         self.simulate_button.on_click(lambda _b: self.simulate())
         ratio_box = w.VBox(list(self.ratios.values()))
+        failed_box = w.VBox([w.HTML("<b>failed rotors</b>"), *self.failed_boxes.values()],
+                            layout=w.Layout(width="180px"))
         self._build_widget([
-            w.HBox([self.failed, w.VBox([self.mode, ratio_box])]),
+            w.HBox([failed_box, w.VBox([self.mode, ratio_box])]),
             w.HBox([self.horizon, self.simulate_button, self.auto_simulate]),
         ])
         self._auto_once = simulate
@@ -187,22 +204,60 @@ class FailurePanel(Panel):
 
     # -- controls -------------------------------------------------------------------------
 
+    def failed_set(self) -> tuple[str, ...]:
+        """The ticked rotors, in file order."""
+        return tuple(n for n, b in self.failed_boxes.items() if b.value)
+
+    def set_failed(self, names) -> None:
+        """Tick exactly ``names`` (one refresh)."""
+        names = set(names)
+        with self.hold():
+            for n, b in self.failed_boxes.items():
+                b.value = n in names
+            if self.mode.value == RATIOS:
+                self._set_least_effort_ratios()
+
     def thrust_ratio(self) -> dict | None:
         if self.mode.value != RATIOS:
             return None
-        return {n: float(s.value) for n, s in self.ratios.items()
-                if n not in set(self.failed.value)}
+        failed = set(self.failed_set())
+        return {n: float(s.value) for n, s in self.ratios.items() if n not in failed}
+
+    def _set_least_effort_ratios(self) -> None:
+        """Put the least-effort thrusts of the ticked failure set into the ratio sliders."""
+        veh = self.vehicle
+        failed = self.failed_set()
+        if check_inputs(veh, failed, None):
+            return
+        case = self._case(failed, None)
+        if case is None:
+            case = analyse_case(veh, failed, None)
+            self._remember((failed, None), case)
+        if not case.eq.found:
+            return
+        for n, r in least_effort_ratios(case.eq, veh.names).items():
+            self.ratios[n].value = r if n not in failed else 0.0
+
+    def _on_failed(self, _change) -> None:
+        if self._holding:
+            return
+        if self.mode.value == RATIOS:
+            # ratios reset to the new set's least-effort equilibrium (a rotor that was failed
+            # would otherwise keep its ratio 0 and leave the vehicle with no equilibrium)
+            with self.hold():
+                self._set_least_effort_ratios()
+        else:
+            self.refresh()
 
     def _on_mode(self, change) -> None:
-        if change["new"] == RATIOS and self.view is not None and self.view.eq.found:
+        if change["new"] == RATIOS:
             with self.hold():
-                for n, r in least_effort_ratios(self.view.eq, self.vehicle.names).items():
-                    self.ratios[n].value = round(r, 2)
+                self._set_least_effort_ratios()
         else:
             self.refresh()
 
     def control_values(self):
-        rows = [("failed rotors", ", ".join(self.failed.value) or "none"),
+        rows = [("failed rotors", ", ".join(self.failed_set()) or "none"),
                 ("equilibrium", self.mode.value)]
         ratio = self.thrust_ratio()
         if ratio is not None:
@@ -219,9 +274,14 @@ class FailurePanel(Panel):
             return self._cache[key]
         return None
 
+    def _remember(self, key, case) -> None:
+        self._cache[key] = case
+        while len(self._cache) > CACHE_SIZE:
+            self._cache.popitem(last=False)
+
     def update(self) -> str:
         veh = self.vehicle
-        failed = tuple(n for n in veh.names if n in set(self.failed.value))
+        failed = self.failed_set()
         for n, s in self.ratios.items():
             s.disabled = self.mode.value != RATIOS or n in failed
         ratio = self.thrust_ratio()
@@ -233,18 +293,17 @@ class FailurePanel(Panel):
         try:
             view = failure_view(veh, failed, ratio, hint=hint, case=cached)
         except ValueError as exc:
-            self._clear_figures()
+            self._clear_figures(str(exc))
             self.view = None
             self._drop_sim(str(exc))
             raise
-        key = (failed, ratio_key(ratio))
-        self._cache[key] = view.case
-        while len(self._cache) > CACHE_SIZE:
-            self._cache.popitem(last=False)
+        self._remember((failed, ratio_key(ratio)), view.case)
         self.view = view
         for name in ("thrust", "poles", "circle"):
             for k, data in view.figures[name].items():
                 plots.set_data(self.sources[name][k], data)
+        for k in ("thrust", "poles", "circle"):
+            plots.set_notice(self.notices[k], view.message)
         if self.auto_simulate.value or self._auto_once:
             self._simulate_now()
         else:
@@ -252,23 +311,38 @@ class FailurePanel(Panel):
         self.message = view.message
         return self.readouts()
 
-    def _clear_figures(self) -> None:
-        for name in ("thrust", "poles", "circle"):
-            for src in self.sources[name].values():
-                plots.set_data(src, {c: [] for c in src.data})
+    def _clear_figures(self, why: str = "") -> None:
+        """Empty the equilibrium figures (axes kept) and say why over them."""
+        veh = self.vehicle
+        # the bars stay (at zero, as failed) so the thrust axis keeps its limits
+        plots.set_data(self.sources["thrust"]["bars"], plots.thrust_data(
+            veh.names, np.zeros(veh.n), veh.max_thrust_n, working=np.zeros(veh.n, bool),
+            spin=veh.spin, threshold_fraction=None)["bars"])
+        for name in ("poles", "circle"):
+            for key, src in self.sources[name].items():
+                if key != "anchor":
+                    plots.set_data(src, {c: [] for c in src.data})
+        for k in ("thrust", "poles", "circle"):
+            plots.set_notice(self.notices[k], why)
 
     def _drop_sim(self, why: str) -> None:
         self.sim = None
         self.sim_message = why
         for k, data in plots.response_data(None, self.vehicle.n).items():
             plots.set_data(self.sources["response"][k], data)
+        self._sim_notice()
+
+    def _sim_notice(self) -> None:
+        text = "" if self.sim is not None else (self.sim_message or "not simulated")
+        for k in ("rates", "thrust_t"):
+            plots.set_notice(self.notices[k], text)
 
     def _simulate_now(self) -> None:
         from kit.analysis.simulate import simulate_failure
         from kit.errors import EquilibriumNotFound
 
         t0 = time.perf_counter()
-        failed = tuple(n for n in self.vehicle.names if n in set(self.failed.value))
+        failed = self.failed_set()
         try:
             self.sim = simulate_failure(self.vehicle, failed, t_end=float(self.horizon.value),
                                         thrust_ratio=self.thrust_ratio())
@@ -279,16 +353,30 @@ class FailurePanel(Panel):
         self.last_simulate_s = time.perf_counter() - t0
         for k, data in plots.response_data(self.sim, self.vehicle.n).items():
             plots.set_data(self.sources["response"][k], data)
+        self._sim_notice()
 
     def simulate(self) -> None:
-        """Run the nonlinear simulation for the current controls and show it."""
-        if self.view is None or not self.view.eq.found:
-            self.sim_message = "not simulated: there is no equilibrium to hold"
-        else:
-            self._simulate_now()
-        self._readout.value = f"<div class='rb-panel'>{self.readouts()}</div>"
-        self.readout_html = self.readouts()
-        self.render()
+        """Run the nonlinear simulation for the current controls and show it.
+
+        The button is disabled (and says so) while it runs; the figures change in one message.
+        """
+        b = self.simulate_button
+        b.disabled, b.description = True, "simulating..."
+        fw = self.figure_widget
+        if fw is not None:
+            fw.hold()
+        try:
+            if self.view is None or not self.view.eq.found:
+                self.sim_message = "not simulated: there is no equilibrium to hold"
+                self._sim_notice()
+            else:
+                self._simulate_now()
+            self.readout_html = self.readouts()
+            self._show_text()
+        finally:
+            if fw is not None:
+                fw.flush()
+            b.disabled, b.description = False, "simulate"
 
     # -- readouts -------------------------------------------------------------------------
 

@@ -82,7 +82,8 @@ class OverviewPanel(Panel):
         self.vehicle = as_vehicle(design)
         self.title = f"Design overview: {self.vehicle.design.name}"
         self.figure, self.sources = plots.top_view_figure(
-            plots.extent_of(self.vehicle.mp, self.vehicle.design))
+            plots.extent_of(self.vehicle.mp, self.vehicle.design),
+            wheel=self.vehicle.design.wheel is not None)
         self.layout = self.figure
         self.sort_by = w.Dropdown(options=list(SORT_KEYS), value="file order",
                                   description="parts by")

@@ -2,7 +2,9 @@
 
 The curves come from :func:`kit.analysis.wheel.wheel_study`, once, when the panel is built
 (or from a DesignReport's study); moving the momentum slider only moves the marker, interpolates
-the readouts on the stored curve and recomputes the sizing figures, which are cheap.
+the readouts on the stored curve and recomputes the sizing figures, which are cheap. The slider
+updates on release (a drag is one update). A design without a wheel shows the reason and no
+figure.
 """
 
 from __future__ import annotations
@@ -90,6 +92,7 @@ class WheelPanel(Panel):
         self.title = f"Momentum wheel: {d.name}"
         self.figure, self.sources = plots.wheel_figure()
         self.layout = plots.in_document(self.figure)
+        self.notice = plots.add_notice(self.figure)
         # the whole study once (every case's curve): the gyroscopic torque bound needs the
         # largest body rate over all cases; a DesignReport brings it already computed
         if study is not None:
@@ -99,6 +102,7 @@ class WheelPanel(Panel):
         else:
             self.study = wheel_study(veh, executor=executor)
         self.available = self.study.available
+        self.show_figure = bool(self.available)
         self._curves = {self._label(c): c for c in self.study.curves}
         hmax = self.study.h_max_n_m_s if self.available else 1.0
         style = {"description_width": "initial"}
@@ -108,7 +112,7 @@ class WheelPanel(Panel):
                                description="case", style=style)
         self.h = w.FloatSlider(value=hmax if self.available else 0.0, min=-hmax, max=hmax,
                                step=hmax / 100, description="wheel momentum h (N m s)",
-                               readout_format=".3g", continuous_update=True,
+                               readout_format=".3g", continuous_update=False,
                                disabled=not self.available, style=style,
                                layout=w.Layout(width="60%"))
         self.controls = {"case": self.case, "h": self.h}
@@ -128,12 +132,12 @@ class WheelPanel(Panel):
     def _load_curve(self) -> None:
         """Put the chosen case's stored curve and its flags into the figure."""
         self.curve = self._curves[self.case.value]
-        for k, data in plots.wheel_curve_data(self.curve, flagged_momenta(self.curve)).items():
+        flagged = flagged_momenta(self.curve)
+        for k, data in plots.wheel_curve_data(self.curve, flagged).items():
             plots.set_data(self.sources[k], data)
+        plots.show_legend_item(self.figure, "flagged", bool(flagged))
 
     def _on_case(self, _change) -> None:
-        if self.available:
-            self._load_curve()
         self.refresh()
 
     def control_values(self):
@@ -143,8 +147,12 @@ class WheelPanel(Panel):
     def update(self) -> str:
         if not self.available:
             raise ValueError(self.study.reason)
+        if self.curve is None or self._curves.get(self.case.value) is not self.curve:
+            self._load_curve()
         self.view = v = wheel_view(self.vehicle, self.study, self.curve, self.h.value)
         plots.set_data(self.sources["marker"], v.marker["marker"])
+        plots.set_notice(self.notice, "" if math.isfinite(v.h2_ratio) else
+                         "no H2 ratio at this momentum (no stabilising loop)")
         rows = [
             ("H2 ratio to h = 0 (LQR redesigned)", plots.fmt(v.h2_ratio, 3)),
             ("H2 ratio, h = 0 gain kept", plots.fmt(v.h2_ratio_fixed_gain, 3)),

@@ -12,11 +12,45 @@ import sys
 import warnings
 
 from kit import __version__
-from kit.errors import DesignError, DesignWarning, OptionError, RecordError, RotorbookError
+from kit.errors import (
+    AnalysisError,
+    DesignError,
+    DesignWarning,
+    OptionError,
+    RecordError,
+    RotorbookError,
+)
 
 EXIT_OK = 0
 EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
+#: With ``--strict``: the analysis ran and at least one design check failed.
+EXIT_CHECKS_FAILED = 3
+
+EXIT_CODES_TEXT = """exit status:
+  0  done{ok}
+  1  a workbook failed to run (its record is marked FAILED)
+  2  invalid input or option (one line per problem on stderr)
+  3  with --strict: the analysis ran and a design check failed"""
+
+
+def _json_safe(obj):
+    """Plain JSON data: NaN and infinities become null, numpy values plain Python."""
+    if isinstance(obj, dict):
+        return {str(k): _json_safe(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [_json_safe(v) for v in obj]
+    if hasattr(obj, "tolist"):
+        return _json_safe(obj.tolist())
+    if isinstance(obj, float):
+        return obj if obj == obj and obj not in (float("inf"), float("-inf")) else None
+    return obj
+
+
+def _dump_json(data, indent=None) -> None:
+    """Write JSON on stdout; never a NaN or Infinity token."""
+    json.dump(_json_safe(data), sys.stdout, indent=indent, allow_nan=False)
+    sys.stdout.write("\n")
 
 
 def _load_with_warnings(path: str):
@@ -68,6 +102,9 @@ def _check_one(path: str) -> tuple[dict, str | None]:
 
     try:
         d, mp, warns = _load_with_warnings(path)
+        from kit.analysis.report import finite_mass_properties
+
+        finite_mass_properties(d, mp)
     except DesignError as exc:
         return {"file": path, "design": None, "mass_properties": None, "rotors": [],
                 "errors": list(exc.problems), "warnings": []}, None
@@ -91,15 +128,14 @@ def cmd_check(args) -> int:
     """Validate each file; invalid ones print one line per problem on stderr (exit 2)."""
     checked = [_check_one(p) for p in args.files]
     records = [rec for rec, _ in checked]
+    for rec in records:  # every problem on stderr, with --json too
+        for line in rec["errors"]:
+            print(f"{rec['file']}: {line}", file=sys.stderr)
     if args.json:
-        json.dump(records, sys.stdout, indent=2)
-        sys.stdout.write("\n")
+        _dump_json(records, indent=2)
     else:
         for rec, summary in checked:
-            if rec["errors"]:
-                for line in rec["errors"]:
-                    print(f"{rec['file']}: {line}", file=sys.stderr)
-            else:
+            if not rec["errors"]:
                 print(f"{rec['file']}: valid")
                 print(summary)
                 for w in rec["warnings"]:
@@ -119,14 +155,20 @@ def cmd_equations(args) -> int:
 
 
 def cmd_analyze(args) -> int:
-    from kit.analysis.report import analyze_file
+    from kit.analysis.report import analyze
 
-    report = analyze_file(args.file, progress=_progress("cases", not args.json))
+    d, _mp, warns = _load_with_warnings(args.file)
+    for w in warns:
+        print(f"{args.file}: warning: {w}", file=sys.stderr)
+    report = analyze(d, progress=_progress("cases", not args.json))
     if args.json:
-        json.dump(report.to_dict(), sys.stdout, indent=1)
-        sys.stdout.write("\n")
+        _dump_json(report.to_dict(), indent=1)
     else:
         print(report.summary_text())
+    if args.strict and not report.passed:
+        failed = report.verdict["failed"]
+        print(f"rotorbook: {failed} design check(s) failed (--strict)", file=sys.stderr)
+        return EXIT_CHECKS_FAILED
     return EXIT_OK
 
 
@@ -161,8 +203,7 @@ def cmd_sweep(args) -> int:
     pmap = placement_sweep(d, args.part, offsets, offsets, tuple(args.failed),
                            progress=_progress(f"sweep {args.part}", not args.json))
     if args.json:
-        json.dump(plain(pmap.to_dict()), sys.stdout)
-        sys.stdout.write("\n")
+        _dump_json(plain(pmap.to_dict()))
         return EXIT_OK
     print(f"{d.name}: '{args.part}' moved over {args.points} x {args.points} offsets, "
           f"+-{args.span_m:g} m in x and y")
@@ -186,7 +227,13 @@ def cmd_record(args) -> int:
                            force=args.force)
     for line in result.lines():
         print(line)
-    return EXIT_OK if result.ok else EXIT_FAILED
+    if not result.ok:
+        return EXIT_FAILED
+    failed = sum(r.checks_failed for r in result.records)
+    if args.strict and failed:
+        print(f"rotorbook: {failed} design check(s) failed (--strict)", file=sys.stderr)
+        return EXIT_CHECKS_FAILED
+    return EXIT_OK
 
 
 def cmd_new(args) -> int:
@@ -201,27 +248,45 @@ def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="rotorbook",
         description="Multirotor attitude dynamics: design checks, derivations, analyses, records.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        epilog="example:\n  rotorbook check data/designs/survey_quad.toml\n"
+               "  rotorbook analyze data/designs/survey_quad.toml --strict\n\n"
+               + EXIT_CODES_TEXT.format(ok=""),
     )
     p.add_argument("--version", action="version", version=f"rotorbook {__version__}")
     p.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    c = sub.add_parser("check", help="validate design files and summarise mass properties")
+    c = sub.add_parser("check", help='validate design files and summarise mass properties',
+                       description='validate design files and summarise mass properties',
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook check data/designs/survey_quad.toml --json\n\n" + EXIT_CODES_TEXT.format(ok=' (every file valid)'))
     c.add_argument("files", nargs="+", metavar="FILE")
     c.add_argument("--json", action="store_true", help="JSON list on stdout")
     c.set_defaults(func=cmd_check)
 
-    e = sub.add_parser("equations", help="print the derived equations for a design's structure")
+    e = sub.add_parser("equations", help="print the derived equations for a design's structure",
+                       description="print the derived equations for a design's structure",
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook equations data/designs/heavy_hex.toml --latex\n\n" + EXIT_CODES_TEXT.format(ok=''))
     e.add_argument("file", metavar="FILE")
     e.add_argument("--latex", action="store_true", help="LaTeX instead of plain text")
     e.set_defaults(func=cmd_equations)
 
-    a = sub.add_parser("analyze", help="hover, failure cases, control, risk, wheel, checks")
+    a = sub.add_parser("analyze", help='hover, failure cases, control, risk, wheel, checks',
+                       description='hover, failure cases, control, risk, wheel, checks',
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook analyze data/designs/survey_quad.toml --json --strict > analysis.json\n\n" + EXIT_CODES_TEXT.format(ok=' (without --strict also when design checks fail; see the verdict)'))
     a.add_argument("file", metavar="FILE")
     a.add_argument("--json", action="store_true", help="JSON (schema rotorbook.analysis/1)")
+    a.add_argument("--strict", action="store_true",
+                   help="exit 3 when any design check fails (a gate for CI)")
     a.set_defaults(func=cmd_analyze)
 
-    s = sub.add_parser("sweep", help="move one part over a grid: equilibria, control, risk")
+    s = sub.add_parser("sweep", help='move one part over a grid: equilibria, control, risk',
+                       description='move one part over a grid: equilibria, control, risk',
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook sweep data/designs/survey_quad.toml --part battery --failed front_left\n\n" + EXIT_CODES_TEXT.format(ok=''))
     s.add_argument("file", metavar="FILE")
     s.add_argument("--part", required=True, help="part name (or 'wheel')")
     s.add_argument("--failed", nargs="*", default=[], metavar="ROTOR",
@@ -232,15 +297,23 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--json", action="store_true", help="the whole map as JSON")
     s.set_defaults(func=cmd_sweep)
 
-    r = sub.add_parser("record", help="execute the workbooks for a design into HTML records")
+    r = sub.add_parser("record", help='execute the workbooks for a design into HTML records',
+                       description='execute the workbooks for a design into HTML records',
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook record data/designs/survey_quad.toml --out records/survey_quad --strict\n\n" + EXIT_CODES_TEXT.format(ok=' (every workbook ran; without --strict also when design checks fail)'))
     r.add_argument("design", metavar="DESIGN")
     r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
                    help="workbook names (default: all templates)")
     r.add_argument("--out", default="records", metavar="DIR", help="output folder")
     r.add_argument("--force", action="store_true", help="replace existing records")
+    r.add_argument("--strict", action="store_true",
+                   help="exit 3 when every workbook ran and a design check failed")
     r.set_defaults(func=cmd_record)
 
-    n = sub.add_parser("new", help="a per-design folder with the workbooks pointed at it")
+    n = sub.add_parser("new", help='a per-design folder with the workbooks pointed at it',
+                       description='a per-design folder with the workbooks pointed at it',
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="example:\n  rotorbook new my_quad --from data/designs/survey_quad.toml\n\n" + EXIT_CODES_TEXT.format(ok=''))
     n.add_argument("dir", metavar="DIR")
     n.add_argument("--from", dest="design", required=True, metavar="DESIGN")
     n.set_defaults(func=cmd_new)
@@ -263,7 +336,8 @@ def main(argv: list[str] | None = None) -> int:
         if args.debug:
             raise
         print(f"rotorbook: {exc}", file=sys.stderr)
-        return EXIT_BAD_INPUT if isinstance(exc, RecordError | OptionError) else EXIT_FAILED
+        bad_input = isinstance(exc, RecordError | OptionError | AnalysisError)
+        return EXIT_BAD_INPUT if bad_input else EXIT_FAILED
     except BrokenPipeError:  # pragma: no cover - output piped into head and the like
         return EXIT_OK
     except KeyboardInterrupt:  # pragma: no cover

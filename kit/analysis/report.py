@@ -7,17 +7,22 @@ renamed).
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
+import signal
+import threading
 from dataclasses import dataclass
 from pathlib import Path
+
+import numpy as np
 
 from kit import __version__
 from kit.analysis import checks as checks_mod
 from kit.analysis.control import LinearControl, design_control
 from kit.analysis.equilibrium import Equilibrium, all_cases, solve
 from kit.analysis.hover import Hover, analyse_hover
-from kit.analysis.htmltable import checks_html, num, table
+from kit.analysis.htmltable import num, table
 from kit.analysis.risk import SaturationRisk, saturation_risk
 from kit.analysis.spin import (
     AXIS_NAMES,
@@ -29,9 +34,72 @@ from kit.analysis.spin import (
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import WheelStudy, wheel_study
 from kit.design import Design, load
+from kit.errors import AnalysisError, DesignError
 from kit.massprops import rotor_table
 
 SCHEMA = "rotorbook.analysis/1"
+
+#: Longest time one case (equilibrium, control, risk) may take, in s; a case that runs longer is
+#: reported as a result without an equilibrium, with the reason. A demo case takes well under
+#: 1 s; 20 s leaves room for slow machines (common practice, no source).
+CASE_TIME_LIMIT_S = 20.0
+#: Longest time the wheel study of a design may take, in s (it solves every case at 21 wheel
+#: momenta).
+WHEEL_TIME_LIMIT_S = 120.0
+#: Numerical failures that make a case a result with a reason instead of an exception.
+NUMERICAL_ERRORS = (np.linalg.LinAlgError, ValueError, ArithmeticError, RecursionError,
+                    AnalysisError)
+
+
+@contextlib.contextmanager
+def time_box(seconds: float, what: str):
+    """Raise :class:`~kit.errors.AnalysisError` when the block runs past ``seconds`` of wall time.
+
+    Uses ``SIGALRM`` and works in the main thread of a POSIX process only (a workbook kernel,
+    the command line, a process-pool worker); elsewhere, or inside another time box, the block
+    runs without a limit.
+    """
+    usable = (seconds > 0 and hasattr(signal, "setitimer")
+              and threading.current_thread() is threading.main_thread()
+              and signal.getitimer(signal.ITIMER_REAL)[0] == 0.0)
+    if not usable:
+        yield
+        return
+
+    def _expired(signum, frame):
+        raise AnalysisError(f"{what}: stopped after the time limit of {seconds:g} s")
+
+    old = signal.signal(signal.SIGALRM, _expired)
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0.0)
+        signal.signal(signal.SIGALRM, old)
+
+
+def _reason(exc: BaseException) -> str:
+    if isinstance(exc, AnalysisError):
+        return str(exc)
+    text = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+    return f"numerical failure ({type(exc).__name__}{': ' + text[:160] if text else ''})"
+
+
+def finite_mass_properties(design: Design, mp) -> None:
+    """Raise DesignError naming the figure when the mass properties are not finite numbers."""
+    problems = []
+    figures = (("mass_kg", "mass", mp.mass_kg), ("com_m", "centre of mass", mp.com_m),
+               ("inertia_kg_m2", "inertia about the centre of mass", mp.inertia_kg_m2),
+               ("principal_moments_kg_m2", "principal moments", mp.principal_moments_kg_m2),
+               ("rotor_positions_m", "rotor positions about the centre of mass",
+                mp.rotor_positions_m))
+    for key, label, value in figures:
+        arr = np.asarray(value, dtype=float)
+        if not np.all(np.isfinite(arr)):
+            problems.append(f"mass properties.{key}: the {label} is not a finite number -> part "
+                            "and rotor masses, positions and sizes within the limits in README")
+    if problems:
+        raise DesignError(problems, path=design.source or None)
 
 
 def plain(obj):
@@ -73,19 +141,42 @@ class CaseResult:
             "control_note": c["note"],
             "saturation_probability_per_s": None if self.risk is None
             else float(self.risk.probability_per_s),
+            "saturation_rate_per_s": None if self.risk is None
+            else float(self.risk.crossing_rate_per_s),
             "saturation": None if self.risk is None else self.risk.to_dict(),
             "checks": [k.to_dict() for k in self.checks],
         })
         return d
 
 
-def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None) -> CaseResult:
-    """Equilibrium, linear control, saturation risk and checks for one failure case."""
+def unsolved(veh: Vehicle, failed=(), thrust_ratio=None, reason: str = "") -> Equilibrium:
+    """The result of a case that could not be solved: no equilibrium, with the reason."""
+    from kit.analysis import equilibrium as eq_mod
+
+    return eq_mod._make(veh, tuple(failed), thrust_ratio, False, reason)
+
+
+def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
+                 time_limit_s: float = CASE_TIME_LIMIT_S) -> CaseResult:
+    """Equilibrium, linear control, saturation risk and checks for one failure case.
+
+    A case whose solve fails numerically or runs past ``time_limit_s`` (s) is a result without
+    an equilibrium whose reason says so; it fails the check "equilibrium within thrust limits".
+    """
     c = veh.design.control
-    eq = solve(veh, failed, thrust_ratio, hint=hint)
-    ctl = design_control(veh, eq)
-    risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
-                           c.disturbance_time_constant_s)
+    try:
+        with time_box(time_limit_s, "equilibrium and control of this case"):
+            eq = solve(veh, failed, thrust_ratio, hint=hint)
+            ctl = design_control(veh, eq)
+            risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
+                                   c.disturbance_time_constant_s)
+            if risk is not None and not math.isfinite(risk.crossing_rate_per_s):
+                raise AnalysisError("thrust-saturation rate is not a finite number (from "
+                                    "control.disturbance_torque_psd_n2_m2_s and the LQR weights)")
+    except NUMERICAL_ERRORS as exc:
+        eq = unsolved(veh, failed, thrust_ratio, _reason(exc))
+        ctl = design_control(veh, eq)
+        risk = None
     return CaseResult(eq, ctl, risk, tuple(checks_mod.case_checks(eq, ctl, risk,
                                                                   veh.design.review)))
 
@@ -149,6 +240,11 @@ class DesignReport:
     def passed(self) -> bool:
         return all(c.passed for c in self.checks)
 
+    @property
+    def verdict(self) -> dict:
+        """``{"result": "pass" | "fail", "checks", "failed", "failed_checks": [...]}``."""
+        return checks_mod.verdict(self.checks)
+
     def case(self, failed=(), thrust_ratio=None) -> CaseResult | None:
         for c in self.cases:
             if set(c.eq.failed) == set(failed) and c.eq.thrust_ratio == thrust_ratio:
@@ -169,6 +265,7 @@ class DesignReport:
             "spin_stability": self.spin.to_dict(),
             "wheel_study": self.wheel.to_dict(),
             "checks": [c.to_dict() for c in self.checks],
+            "verdict": self.verdict,
             "assumptions": [
                 "rotor speeds follow thrust commands at once (no rotor acceleration torque)",
                 "yaw rate is held at its equilibrium value in the reduced model",
@@ -191,16 +288,20 @@ class DesignReport:
             if not eq.found:
                 lines.append(f"    {eq.label}: no equilibrium ({eq.reason})")
                 continue
-            p = c.risk.probability_per_s if c.risk is not None else float("nan")
+            rate = c.risk.crossing_rate_per_s if c.risk is not None else None
             lines.append(
-                f"    {eq.label}: spin {eq.spin_rate_rad_s:+.3g} rad/s, tilt {eq.tilt_deg:.3g}"
-                f" deg, max thrust {eq.thrust_n.max():.3g} N, "
+                f"    {eq.label}: spin rate about n {num(eq.spin_rate_rad_s, 3)} rad/s, tilt "
+                f"{num(eq.tilt_deg, 3)} deg, max thrust {num(float(eq.thrust_n.max()), 3)} N, "
                 f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
-                f"P(sat) {p:.2g}/s")
+                f"thrust-saturation rate {num(rate, 2)} 1/s")
         if self.wheel.available:
             lines.append(f"  wheel: h_max {self.wheel.h_max_n_m_s:.3g} N m s, "
                          f"{len(self.wheel.flags)} flag(s)")
         failed = [c for c in self.checks if not c.passed]
+        v = self.verdict
+        lines.insert(1, f"  verdict: {v['result'].upper()} ("
+                     + (f"{v['failed']} of {v['checks']} design checks failed)" if v["failed"]
+                        else f"all {v['checks']} design checks met)"))
         lines.append(f"  checks: {len(self.checks) - len(failed)} of {len(self.checks)} passed")
         for c in failed:
             lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
@@ -215,12 +316,18 @@ class DesignReport:
                          eq.tilt_deg if eq.found else None,
                          float(eq.thrust_n.max()) if eq.found else None,
                          c.ctl.controllable, c.ctl.h2_norm,
-                         c.risk.probability_per_s if c.risk is not None else None))
-        t = table(["case", "equilibrium", "spin (rad/s)", "tilt (deg)", "max thrust (N)",
-                   "controllable", "H2 norm", "P(sat) per s"], rows, "Cases")
+                         c.risk.crossing_rate_per_s if c.risk is not None else None))
+        t = table(["case", "equilibrium", "spin rate about n (rad/s)", "tilt (deg)",
+                   "max thrust (N)", "controllable", "H2 norm (rad per N m per sqrt(Hz))",
+                   "thrust-saturation rate (1/s)"], rows, "Cases")
         d = self.design
+        v = self.verdict
         head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
-        return head + checks_html(self.checks) + t
+        line = (f"<p><b>Verdict: {v['result'].upper()}</b> &#8212; "
+                + (f"{v['failed']} of {v['checks']} design checks failed"
+                   if v["failed"] else f"all {v['checks']} design checks met")
+                + " (the checks table is in the summary of the design checks).</p>")
+        return head + line + t
 
 
 def analyze(design: Design, wheel: bool = True, executor=None, progress=None) -> DesignReport:
@@ -237,7 +344,14 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
         ``progress(done, total)`` over the equilibrium cases.
     """
     veh = Vehicle.from_design(design)
-    hover = analyse_hover(veh)
+    finite_mass_properties(design, veh.mp)
+    try:
+        with time_box(CASE_TIME_LIMIT_S, "hover analysis"):
+            hover = analyse_hover(veh)
+    except NUMERICAL_ERRORS as exc:
+        raise DesignError([f"hover analysis: {_reason(exc)} -> rotor positions, max_thrust_n "
+                           "and masses within the limits in README"],
+                          path=design.source or None) from None
     todo = all_cases(veh)
     results = []
     for i, (f, r) in enumerate(todo):
@@ -246,7 +360,12 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
             progress(i + 1, len(todo))
     cases = tuple(results)
     spin = spin_section(veh, [c.eq for c in cases])
-    study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
+    try:
+        with time_box(WHEEL_TIME_LIMIT_S, "wheel study"):
+            study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
+    except NUMERICAL_ERRORS as exc:
+        study = WheelStudy(False, "wheel study not carried out: " + _reason(exc), 0.0, 0.0, 0.0,
+                           0.0, 0.0, 0.0, ())
     checks = list(checks_mod.hover_checks(hover, design.review))
     for c in cases:
         checks += c.checks

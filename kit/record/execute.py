@@ -109,7 +109,10 @@ class Kernel:
             spec_dir = Path(self._tmp.name) / OWN_KERNEL_NAME
             spec_dir.mkdir()
             (spec_dir / "kernel.json").write_text(json.dumps({
-                "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
+                # log level ERROR: the kernel's start-up notices (e.g. that it talks over TCP
+                # on the loopback without encryption) are not the record's business
+                "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}",
+                         "--IPKernelApp.log_level=ERROR"],
                 "display_name": "Python (rotorbook record)",
                 "language": "python",
             }), encoding="utf-8")

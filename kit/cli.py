@@ -224,7 +224,7 @@ def cmd_record(args) -> int:
     from kit.record.render import record_design
 
     result = record_design(args.design, workbooks=args.workbooks, out_dir=args.out,
-                           force=args.force)
+                           force=args.force, template_dir=args.template_dir)
     for line in result.lines():
         print(line)
     if not result.ok:
@@ -308,6 +308,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--force", action="store_true", help="replace existing records")
     r.add_argument("--strict", action="store_true",
                    help="exit 3 when every workbook ran and a design check failed")
+    r.add_argument("--template-dir", default=None, metavar="DIR",
+                   help="folder of workbook templates (default: workbooks/ beside the kit)")
     r.set_defaults(func=cmd_record)
 
     n = sub.add_parser("new", help='a per-design folder with the workbooks pointed at it',

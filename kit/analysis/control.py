@@ -85,7 +85,7 @@ class LinearControl:
     def __repr__(self) -> str:
         state = "controllable" if self.controllable else "not controllable"
         stab = "LQR stable" if self.stable else "no stabilising LQR"
-        return (f"<LinearControl: {state} (PBH distance {self.controllability_distance:.3g}), "
+        return (f"<LinearControl: {state} (controllability distance {self.controllability_distance:.3g}), "
                 f"{stab}, H2 {self.h2_norm:.4g}>")
 
     @property

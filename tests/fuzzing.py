@@ -341,3 +341,23 @@ def run_case(doc: dict, folder: Path, analysis: bool = True, time_limit_s: float
         code, so, se, prob = run_command(["analyze", "--json", str(path)], time_limit_s)
         outcomes.append(judge("analyze", code, so, se, prob, True))
     return outcomes
+
+
+def edge_mutation(doc: dict, ch: Chooser) -> str:
+    """Set one bounded number (README, Limits) to the edge of its allowed range, in place: a
+    file that still loads, with a figure as extreme as validation lets through."""
+    from kit.design_rules import BOUNDS
+
+    paths = [p for p in _paths(doc) if any(isinstance(k, str) and k in BOUNDS for k in p)]
+    leaves = [p for p in paths if isinstance(_parent(doc, p)[p[-1]], int | float)
+              and not isinstance(_parent(doc, p)[p[-1]], bool)]
+    if not leaves:
+        return "none"
+    path = ch.pick(leaves)
+    field = next(k for k in reversed(path) if isinstance(k, str) and k in BOUNDS)
+    lo, hi, _unit = BOUNDS[field]
+    parent = _parent(doc, path)
+    old = parent[path[-1]]
+    edge = ch.pick([x for x in (lo, hi) if x > 0] or [hi])
+    parent[path[-1]] = -edge if old < 0 else edge
+    return f"edge:{field}={parent[path[-1]]:g}"

@@ -316,6 +316,36 @@ class CasesTable:
                      rows, "Relaxed-hover cases")
 
 
+class GyroscopicTorque:
+    """The wheel's gyroscopic torque beside the vehicle's roll and pitch torque authority.
+
+    The torque is ``h * omega`` (wheel momentum times the largest body rate of the study); the
+    authority is the smaller of the roll and pitch torque margins in hover (both signs).
+    """
+
+    def __init__(self, study, hover) -> None:
+        self.torque_n_m = float(study.gyro_torque_n_m)
+        self.authority_n_m = float(min(hover.torque_margin_n_m[0], hover.torque_margin_n_m[1]))
+
+    @property
+    def ratio(self) -> float:
+        return self.torque_n_m / self.authority_n_m if self.authority_n_m > 0 else math.inf
+
+    def __repr__(self) -> str:
+        return (f"<gyroscopic torque {num(self.torque_n_m)} N m against roll/pitch authority "
+                f"{num(self.authority_n_m)} N m>")
+
+    def _repr_html_(self) -> str:
+        r = self.ratio
+        verdict = ("within the authority" if r <= 1 else
+                   "exceeds the authority: the rotors cannot hold it")
+        return table(["figure", "value"], [
+            ("gyroscopic torque of the wheel at the largest body rate (N m)", self.torque_n_m),
+            ("roll/pitch torque authority in hover, smaller axis (N m)", self.authority_n_m),
+            ("ratio (gyroscopic torque / authority)", r),
+            ("result", verdict)], "Gyroscopic torque against the torque authority")
+
+
 class Cautions:
     """The cautions that close every workbook and record."""
 

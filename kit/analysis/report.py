@@ -295,8 +295,11 @@ class DesignReport:
                 f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
                 f"thrust-saturation rate {num(rate, 2)} 1/s")
         if self.wheel.available:
+            m = self.hover.torque_margin_n_m
             lines.append(f"  wheel: h_max {self.wheel.h_max_n_m_s:.3g} N m s, "
-                         f"{len(self.wheel.flags)} flag(s)")
+                         f"{len(self.wheel.flags)} flag(s); gyroscopic torque "
+                         f"{num(self.wheel.gyro_torque_n_m, 3)} N m against roll/pitch "
+                         f"authority {num(float(min(m[0], m[1])), 3)} N m")
         failed = [c for c in self.checks if not c.passed]
         v = self.verdict
         lines.insert(1, f"  verdict: {v['result'].upper()} ("

@@ -7,7 +7,7 @@ STAMP := $(VENV)/.installed-stamp
 DEMO_DESIGNS := $(wildcard data/designs/*.toml)
 export ROTORBOOK_CACHE_DIR ?= $(CURDIR)/.cache/rotorbook
 
-.PHONY: demo test test-fast lint bench lab chromium snapshots outputs clean
+.PHONY: demo test test-fast lint bench fuzz lab chromium snapshots outputs clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -52,6 +52,10 @@ test-fast: $(STAMP)
 ## make bench: speed and memory, as ratios measured in one run (never fails on time)
 bench: $(STAMP)
 	@for b in tests/bench/bench_*.py; do echo "== $$b"; $(PY) $$b || exit 1; done
+
+## make fuzz: 10,000 mutated demo designs through check and analyze; prints the outcomes by kind
+fuzz: $(STAMP)
+	$(PY) tests/bench/fuzz_designs.py --cases 10000
 
 ## make lab: JupyterLab on 127.0.0.1 over the workbooks
 lab: $(STAMP)

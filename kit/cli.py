@@ -244,6 +244,13 @@ def cmd_new(args) -> int:
     return EXIT_OK
 
 
+def _command(sub, name: str, help_: str, example: str, ok: str = "") -> argparse.ArgumentParser:
+    """A sub-command whose --help ends with an example and the exit codes."""
+    return sub.add_parser(name, help=help_, description=help_,
+                          formatter_class=argparse.RawDescriptionHelpFormatter,
+                          epilog=f"example:\n  {example}\n\n" + EXIT_CODES_TEXT.format(ok=ok))
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="rotorbook",
@@ -257,36 +264,30 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    c = sub.add_parser("check", help='validate design files and summarise mass properties',
-                       description='validate design files and summarise mass properties',
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook check data/designs/survey_quad.toml --json\n\n" + EXIT_CODES_TEXT.format(ok=' (every file valid)'))
+    c = _command(sub, "check", "validate design files and summarise mass properties",
+                 "rotorbook check data/designs/survey_quad.toml --json",
+                 " (every file valid)")
     c.add_argument("files", nargs="+", metavar="FILE")
     c.add_argument("--json", action="store_true", help="JSON list on stdout")
     c.set_defaults(func=cmd_check)
 
-    e = sub.add_parser("equations", help="print the derived equations for a design's structure",
-                       description="print the derived equations for a design's structure",
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook equations data/designs/heavy_hex.toml --latex\n\n" + EXIT_CODES_TEXT.format(ok=''))
+    e = _command(sub, "equations", "print the derived equations for a design's structure",
+                 "rotorbook equations data/designs/heavy_hex.toml --latex")
     e.add_argument("file", metavar="FILE")
     e.add_argument("--latex", action="store_true", help="LaTeX instead of plain text")
     e.set_defaults(func=cmd_equations)
 
-    a = sub.add_parser("analyze", help='hover, failure cases, control, risk, wheel, checks',
-                       description='hover, failure cases, control, risk, wheel, checks',
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook analyze data/designs/survey_quad.toml --json --strict > analysis.json\n\n" + EXIT_CODES_TEXT.format(ok=' (without --strict also when design checks fail; see the verdict)'))
+    a = _command(sub, "analyze", "hover, failure cases, control, risk, wheel, checks",
+                 "rotorbook analyze data/designs/survey_quad.toml --json --strict > analysis.json",
+                 " (without --strict also when design checks fail; see the verdict)")
     a.add_argument("file", metavar="FILE")
     a.add_argument("--json", action="store_true", help="JSON (schema rotorbook.analysis/1)")
     a.add_argument("--strict", action="store_true",
                    help="exit 3 when any design check fails (a gate for CI)")
     a.set_defaults(func=cmd_analyze)
 
-    s = sub.add_parser("sweep", help='move one part over a grid: equilibria, control, risk',
-                       description='move one part over a grid: equilibria, control, risk',
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook sweep data/designs/survey_quad.toml --part battery --failed front_left\n\n" + EXIT_CODES_TEXT.format(ok=''))
+    s = _command(sub, "sweep", "move one part over a grid: equilibria, control, risk",
+                 "rotorbook sweep data/designs/survey_quad.toml --part battery --failed front_left")
     s.add_argument("file", metavar="FILE")
     s.add_argument("--part", required=True, help="part name (or 'wheel')")
     s.add_argument("--failed", nargs="*", default=[], metavar="ROTOR",
@@ -297,10 +298,9 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--json", action="store_true", help="the whole map as JSON")
     s.set_defaults(func=cmd_sweep)
 
-    r = sub.add_parser("record", help='execute the workbooks for a design into HTML records',
-                       description='execute the workbooks for a design into HTML records',
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook record data/designs/survey_quad.toml --out records/survey_quad --strict\n\n" + EXIT_CODES_TEXT.format(ok=' (every workbook ran; without --strict also when design checks fail)'))
+    r = _command(sub, "record", "execute the workbooks for a design into HTML records",
+                 "rotorbook record data/designs/survey_quad.toml --out records/quad --strict",
+                 " (every workbook ran; without --strict also when design checks fail)")
     r.add_argument("design", metavar="DESIGN")
     r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
                    help="workbook names (default: all templates)")
@@ -312,10 +312,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="folder of workbook templates (default: workbooks/ beside the kit)")
     r.set_defaults(func=cmd_record)
 
-    n = sub.add_parser("new", help='a per-design folder with the workbooks pointed at it',
-                       description='a per-design folder with the workbooks pointed at it',
-                       formatter_class=argparse.RawDescriptionHelpFormatter,
-                       epilog="example:\n  rotorbook new my_quad --from data/designs/survey_quad.toml\n\n" + EXIT_CODES_TEXT.format(ok=''))
+    n = _command(sub, "new", "a per-design folder with the workbooks pointed at it",
+                 "rotorbook new my_quad --from data/designs/survey_quad.toml")
     n.add_argument("dir", metavar="DIR")
     n.add_argument("--from", dest="design", required=True, metavar="DESIGN")
     n.set_defaults(func=cmd_new)

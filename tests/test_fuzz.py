@@ -9,11 +9,10 @@ from __future__ import annotations
 
 import copy
 
+import fuzzing
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-import fuzzing
 
 DOCS = fuzzing.demo_documents()
 #: Wall time after which one command counts as a hang, s (the per-case time box is 20 s).

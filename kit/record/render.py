@@ -458,10 +458,11 @@ def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRec
 </head>
 <body>
 <main>
-{verdict}
+{verdict if not all_ok else ""}
 <header class="rb-sheet-head">
 <div class="rb-kicker">Rotorbook calculation records</div>
-<h1>{e(design.name)}</h1>
+<h1>{e(design.name)} <span class="rb-rev">rev. {e(design.revision)}</span></h1>
+{verdict if all_ok else ""}
 <table class="rb-meta">
 <tr><th>Revision</th><td>{e(design.revision)}</td></tr>
 <tr><th>Design file SHA-256</th><td class="rb-mono">{e(design.sha256)}</td></tr>

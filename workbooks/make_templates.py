@@ -172,11 +172,15 @@ spin
            "sinks and drifts, which the summary reports."),
         code("""
 from kit.analysis.simulate import simulate_failure
+from kit.errors import EquilibriumNotFound
 
 first = opened.design.failure_cases[0] if opened.design.failure_cases else None
 if first is not None:
-    sim = simulate_failure(veh, first.failed, thrust_ratio=first.ratio_dict(), t_end=12.0)
-    display(sim)
+    try:
+        sim = simulate_failure(veh, first.failed, thrust_ratio=first.ratio_dict(), t_end=12.0)
+        display(sim)
+    except EquilibriumNotFound as exc:  # a result with its reason, not a failed workbook
+        print(f"nonlinear check not run: {exc}")
 """),
         md("## Explore"),
         code("panels.FailurePanel(veh)"),

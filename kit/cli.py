@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 import warnings
 
@@ -26,6 +27,10 @@ EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
 #: With ``--strict``: the analysis ran and at least one design check failed.
 EXIT_CHECKS_FAILED = 3
+#: Largest sweep grid per side (101 x 101 points, each a full set of cases) and span, in m (the
+#: coordinate limit of design files; README, Limits).
+MAX_SWEEP_POINTS = 101
+MAX_SWEEP_SPAN_M = 100.0
 
 EXIT_CODES_TEXT = """exit status:
   0  done{ok}
@@ -197,8 +202,12 @@ def cmd_sweep(args) -> int:
     if unknown:
         raise OptionError(f"--failed: {', '.join(unknown)} -> rotor names: "
                              + ", ".join(d.rotor_names))
-    if args.points < 2 or args.span_m <= 0:
-        raise OptionError("--points must be >= 2 and --span-m > 0 (offsets -span..+span m)")
+    if not 2 <= args.points <= MAX_SWEEP_POINTS:
+        raise OptionError(f"--points: {args.points} -> 2 .. {MAX_SWEEP_POINTS} grid points per "
+                          "side")
+    if not (math.isfinite(args.span_m) and 0 < args.span_m <= MAX_SWEEP_SPAN_M):
+        raise OptionError(f"--span-m: {args.span_m} -> a finite span > 0 and at most "
+                          f"{MAX_SWEEP_SPAN_M:g} m (offsets -span..+span)")
     offsets = np.linspace(-args.span_m, args.span_m, args.points)
     pmap = placement_sweep(d, args.part, offsets, offsets, tuple(args.failed),
                            progress=_progress(f"sweep {args.part}", not args.json))

@@ -92,3 +92,13 @@ def test_help_of_every_command_has_an_example_and_the_exit_codes(command):
     assert "example:" in out.stdout and f"rotorbook {command} " in out.stdout
     for code in ("0  done", "1  a workbook failed", "2  invalid input", "3  with --strict"):
         assert code in out.stdout
+
+
+@pytest.mark.parametrize("option", [("--span-m", "nan"), ("--span-m", "inf"),
+                                    ("--span-m", "1e300"), ("--points", "10000"),
+                                    ("--points", "1")])
+def test_sweep_options_out_of_range_exit_2_with_one_line(option):
+    out = rotorbook("sweep", DESIGN, "--part", "battery", *option)
+    assert out.returncode == 2
+    assert option[0] in out.stderr and "Traceback" not in out.stderr
+    assert len(out.stderr.strip().splitlines()) == 1

@@ -218,8 +218,8 @@ def matrix_html(rows: list[dict]) -> str:
                    f"{e(limits[n])}</span></th>" for n in names)
     body = []
     for k, case in enumerate(cases):
-        mark = (' <span class="rb-governing" style="border:1px solid #1d1d1b;padding:0 .25rem;'
-                'font-size:.8em">&#9654; governing</span>') if k == 0 else ""
+        mark = ('<br><span class="rb-governing" style="border:1px solid #1d1d1b;padding:0 .25rem;'
+                'font-size:.8em;white-space:nowrap">&#9654; governing</span>') if k == 0 else ""
         tds = []
         for n in names:
             r = cell.get((case, n))

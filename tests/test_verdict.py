@@ -140,3 +140,28 @@ def test_too_many_rotors_is_refused():
                     for i in range(MAX_ROTORS + 1)]
     with pytest.raises(DesignError, match=f"at most {MAX_ROTORS}"):
         from_dict(doc)
+
+
+def test_time_box_stops_a_long_block_and_keeps_an_outer_timer():
+    import signal
+    import time
+
+    from kit.analysis.report import time_box
+    from kit.errors import AnalysisError
+
+    with pytest.raises(AnalysisError, match="time limit of 0.2 s"):
+        with time_box(0.2, "spin"):
+            while True:
+                time.sleep(0.01)
+    fired = []
+    old = signal.signal(signal.SIGALRM, lambda *a: fired.append(1))
+    try:
+        signal.setitimer(signal.ITIMER_REAL, 5.0)
+        with time_box(1.0, "short"):
+            pass
+        left = signal.getitimer(signal.ITIMER_REAL)[0]
+        assert 3.0 < left <= 5.0  # the outer timer is re-armed with what it had left
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0.0)
+        signal.signal(signal.SIGALRM, old)
+    assert not fired

@@ -12,6 +12,7 @@ import html
 import math
 import signal
 import threading
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -56,26 +57,34 @@ def time_box(seconds: float, what: str):
     """Raise :class:`~kit.errors.AnalysisError` when the block runs past ``seconds`` of wall time.
 
     Uses ``SIGALRM`` and works in the main thread of a POSIX process only (a workbook kernel,
-    the command line, a process-pool worker); elsewhere, or inside another time box, the block
-    runs without a limit.
+    the command line, a process-pool worker); elsewhere the block runs without a limit. An
+    outer ``SIGALRM`` timer (another time box, a test's limit) is kept: when it is due first,
+    its own handler runs, and it is re-armed with the time it has left afterwards.
     """
     usable = (seconds > 0 and hasattr(signal, "setitimer")
-              and threading.current_thread() is threading.main_thread()
-              and signal.getitimer(signal.ITIMER_REAL)[0] == 0.0)
+              and threading.current_thread() is threading.main_thread())
     if not usable:
         yield
         return
+    outer_left = signal.getitimer(signal.ITIMER_REAL)[0]
+    outer_first = 0.0 < outer_left < seconds
+    start = time.monotonic()
 
     def _expired(signum, frame):
+        if outer_first and callable(old):
+            old(signum, frame)
         raise AnalysisError(f"{what}: stopped after the time limit of {seconds:g} s")
 
     old = signal.signal(signal.SIGALRM, _expired)
-    signal.setitimer(signal.ITIMER_REAL, seconds)
+    signal.setitimer(signal.ITIMER_REAL, outer_left if outer_first else seconds)
     try:
         yield
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0.0)
         signal.signal(signal.SIGALRM, old)
+        if outer_left > 0.0:
+            left = outer_left - (time.monotonic() - start)
+            signal.setitimer(signal.ITIMER_REAL, max(left, 1e-3))
 
 
 def _reason(exc: BaseException) -> str:

@@ -374,7 +374,11 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None) ->
     spin = spin_section(veh, [c.eq for c in cases])
     try:
         with time_box(WHEEL_TIME_LIMIT_S, "wheel study"):
-            study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
+            # cases without an equilibrium already fail their check; the wheel study would
+            # only search again at every wheel momentum
+            solvable = [(c.eq.failed, c.eq.thrust_ratio) for c in cases if c.eq.found]
+            study = (wheel_study(veh, cases=solvable, executor=executor) if wheel
+                     else wheel_study(veh, cases=[]))
     except NUMERICAL_ERRORS as exc:
         study = WheelStudy(False, "wheel study not carried out: " + _reason(exc), 0.0, 0.0, 0.0,
                            0.0, 0.0, 0.0, ())

@@ -10,7 +10,7 @@ DEMO_REVISION := data/revisions/survey_quad_rev_b.toml
 DEMO_PREVIOUS := data/designs/survey_quad.toml
 export ROTORBOOK_CACHE_DIR ?= $(CURDIR)/.cache/rotorbook
 
-.PHONY: demo test test-fast lint bench lab chromium snapshots outputs clean
+.PHONY: demo test test-fast lint bench fuzz lab chromium snapshots outputs clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -60,6 +60,10 @@ test-fast: $(STAMP)
 ## bench_browser.py times the panels in JupyterLab driven in Debian's chromium
 bench: $(STAMP) chromium
 	@for b in tests/bench/bench_*.py; do echo "== $$b"; $(PY) $$b || exit 1; done
+
+## make fuzz: 10,000 mutated demo designs through check and analyze; prints the outcomes by kind
+fuzz: $(STAMP)
+	$(PY) tests/bench/fuzz_designs.py --cases 10000
 
 ## make lab: JupyterLab on 127.0.0.1 over the workbooks
 ## (no update check and no news fetch: the server never goes online; --allow-root when root)

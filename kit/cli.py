@@ -8,11 +8,13 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 import warnings
 
 from kit import __version__
 from kit.errors import (
+    AnalysisError,
     DesignError,
     DesignWarning,
     OptionError,
@@ -26,6 +28,33 @@ EXIT_OK = 0
 EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
 EXIT_WORSE = 3
+#: With ``--strict``: the analysis ran and at least one design check failed.
+EXIT_CHECKS_FAILED = 3
+
+EXIT_CODES_TEXT = """exit status:
+  0  done{ok}
+  1  a workbook failed to run (its record is marked FAILED)
+  2  invalid input or option (one line per problem on stderr)
+  3  with --strict: the analysis ran and a design check failed"""
+
+
+def _json_safe(obj):
+    """Plain JSON data: NaN and infinities become null, numpy values plain Python."""
+    if isinstance(obj, dict):
+        return {str(k): _json_safe(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [_json_safe(v) for v in obj]
+    if hasattr(obj, "tolist"):
+        return _json_safe(obj.tolist())
+    if isinstance(obj, float):
+        return obj if obj == obj and obj not in (float("inf"), float("-inf")) else None
+    return obj
+
+
+def _dump_json(data, indent=None) -> None:
+    """Write JSON on stdout; never a NaN or Infinity token."""
+    json.dump(_json_safe(data), sys.stdout, indent=indent, allow_nan=False)
+    sys.stdout.write("\n")
 
 
 def _load_with_warnings(path: str):
@@ -117,6 +146,9 @@ def _check_one(path: str) -> tuple[dict, str | None]:
 
     try:
         d, mp, warns = _load_with_warnings(path)
+        from kit.analysis.report import finite_mass_properties
+
+        finite_mass_properties(d, mp)
     except DesignError as exc:
         return {"file": path, "design": None, "mass_properties": None, "rotors": [],
                 "errors": list(exc.problems), "warnings": [], "rotor_fits": []}, None
@@ -141,19 +173,20 @@ def cmd_check(args) -> int:
     """Validate each file; invalid ones print one line per problem on stderr (exit 2)."""
     checked = [_check_one(p) for p in args.files]
     records = [rec for rec, _ in checked]
+    for rec in records:  # every problem on stderr, with --json too
+        for line in rec["errors"]:
+            print(f"{rec['file']}: {line}", file=sys.stderr)
     if args.json:
-        json.dump(records, sys.stdout, indent=2)
-        sys.stdout.write("\n")
+        _dump_json(records, indent=2)
     else:
         for rec, summary in checked:
             if rec["errors"]:
-                for line in rec["errors"]:
-                    print(f"{rec['file']}: {line}", file=sys.stderr)
-            elif getattr(args, "expanded", False):
+                continue
+            if getattr(args, "expanded", False):
                 print(expanded_design_text(rec["file"]))
                 for w in rec["warnings"]:
                     print(f"# warning: {w}")
-            else:
+                continue
                 print(f"{rec['file']}: valid")
                 print(summary)
                 for w in rec["warnings"]:
@@ -173,14 +206,20 @@ def cmd_equations(args) -> int:
 
 
 def cmd_analyze(args) -> int:
-    from kit.analysis.report import analyze_file
+    from kit.analysis.report import analyze
 
-    report = analyze_file(args.file, progress=_progress("cases", not args.json))
+    d, _mp, warns = _load_with_warnings(args.file)
+    for w in warns:
+        print(f"{args.file}: warning: {w}", file=sys.stderr)
+    report = analyze(d, progress=_progress("cases", not args.json))
     if args.json:
-        json.dump(report.to_dict(), sys.stdout, indent=1)
-        sys.stdout.write("\n")
+        _dump_json(report.to_dict(), indent=1)
     else:
         print(report.summary_text())
+    if args.strict and not report.passed:
+        failed = report.verdict["failed"]
+        print(f"rotorbook: {failed} design check(s) failed (--strict)", file=sys.stderr)
+        return EXIT_CHECKS_FAILED
     return EXIT_OK
 
 
@@ -227,7 +266,6 @@ def check_sweep_options(points: int, span_m: float) -> None:
     ``points`` per side: 2 .. :data:`MAX_SWEEP_POINTS`. ``span_m``: finite, > 0 and at most
     :data:`MAX_SWEEP_SPAN_M` m (offsets run from -span to +span).
     """
-    import math
 
     if not 2 <= points <= MAX_SWEEP_POINTS:
         raise OptionError(f"--points: {points} -> a whole number from 2 to {MAX_SWEEP_POINTS} "
@@ -276,8 +314,7 @@ def cmd_sweep(args) -> int:
         if executor is not None:
             executor.shutdown()
     if args.json:
-        json.dump(plain(pmap.to_dict()), sys.stdout)
-        sys.stdout.write("\n")
+        _dump_json(plain(pmap.to_dict()))
         return EXIT_OK
     print(f"{terminal_text(d.name)}: {terminal_text(repr(args.part))} moved over "
           f"{args.points} x {args.points} offsets, "
@@ -304,17 +341,23 @@ def cmd_record(args) -> int:
 
         previous = load_revision(args.previous)  # invalid -> exit 2 before anything runs
     result = record_design(args.design, workbooks=args.workbooks, out_dir=args.out,
-                           force=args.force, wait=args.wait)
+                           force=args.force, wait=args.wait, template_dir=args.template_dir)
     for line in result.lines():
         print(line)
-    if previous is not None:
+    if previous is not None and result.ok:
         from kit.compare import compare, load_revision
         from kit.record.compare_page import record_previous
 
         cmp = compare(previous, load_revision(args.design))
         page = record_previous(cmp, args.out, force=True)
         print(f"comparison with {args.previous}: {cmp.verdict_text()} -> {page}")
-    return EXIT_OK if result.ok else EXIT_FAILED
+    if not result.ok:
+        return EXIT_FAILED
+    failed = sum(r.checks_failed for r in result.records)
+    if args.strict and failed:
+        print(f"rotorbook: {failed} design check(s) failed (--strict)", file=sys.stderr)
+        return EXIT_CHECKS_FAILED
+    return EXIT_OK
 
 
 def cmd_compare(args) -> int:
@@ -363,16 +406,29 @@ def cmd_new(args) -> int:
     return EXIT_OK
 
 
+def _command(sub, name: str, help_: str, example: str, ok: str = "") -> argparse.ArgumentParser:
+    """A sub-command whose --help ends with an example and the exit codes."""
+    return sub.add_parser(name, help=help_, description=help_,
+                          formatter_class=argparse.RawDescriptionHelpFormatter,
+                          epilog=f"example:\n  {example}\n\n" + EXIT_CODES_TEXT.format(ok=ok))
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="rotorbook",
         description="Multirotor attitude dynamics: design checks, derivations, analyses, records.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        epilog="example:\n  rotorbook check data/designs/survey_quad.toml\n"
+               "  rotorbook analyze data/designs/survey_quad.toml --strict\n\n"
+               + EXIT_CODES_TEXT.format(ok=""),
     )
     p.add_argument("--version", action="version", version=f"rotorbook {__version__}")
     p.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    c = sub.add_parser("check", help="validate design files and summarise mass properties")
+    c = _command(sub, "check", "validate design files and summarise mass properties",
+                 "rotorbook check data/designs/survey_quad.toml --json",
+                 " (every file valid)")
     c.add_argument("files", nargs="+", metavar="FILE")
     c.add_argument("--json", action="store_true", help="JSON list on stdout")
     c.add_argument("--expanded", action="store_true",
@@ -380,17 +436,23 @@ def build_parser() -> argparse.ArgumentParser:
                         "limits written out as plain fields")
     c.set_defaults(func=cmd_check)
 
-    e = sub.add_parser("equations", help="print the derived equations for a design's structure")
+    e = _command(sub, "equations", "print the derived equations for a design's structure",
+                 "rotorbook equations data/designs/heavy_hex.toml --latex")
     e.add_argument("file", metavar="FILE")
     e.add_argument("--latex", action="store_true", help="LaTeX instead of plain text")
     e.set_defaults(func=cmd_equations)
 
-    a = sub.add_parser("analyze", help="hover, failure cases, control, risk, wheel, checks")
+    a = _command(sub, "analyze", "hover, failure cases, control, risk, wheel, checks",
+                 "rotorbook analyze data/designs/survey_quad.toml --json --strict > analysis.json",
+                 " (without --strict also when design checks fail; see the verdict)")
     a.add_argument("file", metavar="FILE")
     a.add_argument("--json", action="store_true", help="JSON (schema rotorbook.analysis/1)")
+    a.add_argument("--strict", action="store_true",
+                   help="exit 3 when any design check fails (a gate for CI)")
     a.set_defaults(func=cmd_analyze)
 
-    s = sub.add_parser("sweep", help="move one part over a grid: equilibria, control, risk")
+    s = _command(sub, "sweep", "move one part over a grid: equilibria, control, risk",
+                 "rotorbook sweep data/designs/survey_quad.toml --part battery --failed front_left")
     s.add_argument("file", metavar="FILE")
     s.add_argument("--part", required=True, help="part name (or 'wheel')")
     s.add_argument("--failed", nargs="*", default=[], metavar="ROTOR",
@@ -404,7 +466,9 @@ def build_parser() -> argparse.ArgumentParser:
                         "needs the 'cluster' extra) instead of a local process pool")
     s.set_defaults(func=cmd_sweep)
 
-    r = sub.add_parser("record", help="execute the workbooks for a design into HTML records")
+    r = _command(sub, "record", "execute the workbooks for a design into HTML records",
+                 "rotorbook record data/designs/survey_quad.toml --out records/quad --strict",
+                 " (every workbook ran; without --strict also when design checks fail)")
     r.add_argument("design", metavar="DESIGN")
     r.add_argument("--workbooks", nargs="+", default=None, metavar="NAME",
                    help="workbook names (default: all templates)")
@@ -417,14 +481,18 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--previous", default=None, metavar="OLD",
                    help="the previous revision (design file or analyze --json output): adds "
                         "the comparison page to the index")
+    r.add_argument("--strict", action="store_true",
+                   help="exit 3 when every workbook ran and a design check failed")
+    r.add_argument("--template-dir", default=None, metavar="DIR",
+                   help="folder of workbook templates (default: workbooks/ beside the kit)")
     r.set_defaults(func=cmd_record)
 
-    cp = sub.add_parser(
-        "compare", help="two revisions side by side: inputs, results, checks (exit 3: worse)",
-        description="Compare two design revisions (design files or `analyze --json` outputs). "
-                    "Exit status: 0 nothing got worse; 3 a design check turned to fail (with "
-                    "--strict also: a passing check lost more than the --erosion fraction of "
-                    "its margin); 2 invalid input.")
+    cp = _command(sub, "compare", "two revisions side by side: inputs, results, checks "
+                  "(exit 3: a check turned to fail, or with --strict a margin eroded past "
+                  "--erosion)",
+                  "rotorbook compare data/designs/survey_quad.toml "
+                  "data/revisions/survey_quad_rev_b.toml",
+                  " (nothing got worse)")
     cp.add_argument("old", metavar="OLD")
     cp.add_argument("new", metavar="NEW")
     cp.add_argument("--json", action="store_true", help="JSON (schema rotorbook.comparison/1)")
@@ -438,20 +506,23 @@ def build_parser() -> argparse.ArgumentParser:
     cp.add_argument("--force", action="store_true", help="replace an existing --html file")
     cp.set_defaults(func=cmd_compare)
 
-    hi = sub.add_parser("history", help="revisions of a design folder: verdicts, comparisons")
+    hi = _command(sub, "history", "revisions of a design folder: verdicts, comparisons",
+                  "rotorbook history my_quad --add my_quad_rev_c.toml")
     hi.add_argument("dir", metavar="DIR", help="a folder made by `rotorbook new`")
     hi.add_argument("--add", nargs="+", default=None, metavar="DESIGN",
                     help="design files to add, in order, as the next revisions")
     hi.add_argument("--force", action="store_true",
                     help="add a revision even when the design name differs")
     hi.set_defaults(func=cmd_history)
-    g = sub.add_parser("gains", help="LQR gains of every case for the flight controller (JSON)")
+    g = _command(sub, "gains", "LQR gains of every case for the flight controller (JSON)",
+                 "rotorbook gains data/designs/survey_quad.toml --out gains.json")
     g.add_argument("file", metavar="FILE")
     g.add_argument("--out", default=None, metavar="FILE", help="output file (default: stdout)")
     g.add_argument("--force", action="store_true", help="replace an existing output file")
     g.set_defaults(func=cmd_gains)
 
-    n = sub.add_parser("new", help="a per-design folder with the workbooks pointed at it")
+    n = _command(sub, "new", "a per-design folder with the workbooks pointed at it",
+                 "rotorbook new my_quad --from data/designs/survey_quad.toml")
     n.add_argument("dir", metavar="DIR")
     n.add_argument("--from", dest="design", required=True, metavar="DESIGN")
     n.set_defaults(func=cmd_new)
@@ -498,7 +569,8 @@ def _main(argv: list[str] | None = None) -> int:
         if args.debug:
             raise
         print(f"rotorbook: {exc}", file=sys.stderr)
-        return EXIT_BAD_INPUT if isinstance(exc, RecordError | OptionError) else EXIT_FAILED
+        bad_input = isinstance(exc, RecordError | OptionError | AnalysisError)
+        return EXIT_BAD_INPUT if bad_input else EXIT_FAILED
     except BrokenPipeError:  # pragma: no cover - output piped into head and the like
         return EXIT_OK
     except KeyboardInterrupt:  # pragma: no cover

@@ -49,6 +49,62 @@ DEFAULT_LOOP_RATE_HZ = 500.0
 #: Assumed time constant of the disturbance-torque filter, s (an assumption, marked as such).
 DEFAULT_DISTURBANCE_TIME_CONSTANT_S = 0.05
 
+#: Limits of the numbers in a design file: field name -> (smallest magnitude, largest
+#: magnitude, unit). They lie far outside any multirotor that flies (a 1 mg part, a 10 t
+#: vehicle, a 100 m frame) and keep every figure the kit derives from them (inertia ~ m l^2,
+#: rotor speed sqrt(f / k_f), torques, Riccati solutions) well inside the float range. A value
+#: of 0 stays allowed where the field allows 0. README, "Limits", lists them. (Common practice,
+#: no source.)
+BOUNDS: dict[str, tuple[float, float, str]] = {
+    "mass_kg": (1e-6, 1e4, "kg"),
+    "position_m": (0.0, 100.0, "m"),
+    "com_m": (0.0, 100.0, "m"),
+    "size_m": (1e-6, 100.0, "m"),
+    "radius_m": (1e-6, 100.0, "m"),
+    "outer_radius_m": (1e-6, 100.0, "m"),
+    "inner_radius_m": (0.0, 100.0, "m"),
+    "length_m": (1e-6, 100.0, "m"),
+    "yaw_deg": (0.0, 360.0, "deg"),
+    "diameter_m": (1e-3, 50.0, "m"),
+    "max_thrust_n": (1e-3, 1e6, "N"),
+    "torque_per_thrust_m": (1e-6, 1.0, "m"),
+    "thrust_coeff_n_s2": (1e-12, 10.0, "N s^2"),
+    "rotor_inertia_kg_m2": (0.0, 1e3, "kg m^2"),
+    "inertia_kg_m2": (0.0, 1e6, "kg m^2"),
+    "max_speed_rad_s": (1e-3, 1e5, "rad/s"),
+    "gravity_m_s2": (0.1, 100.0, "m/s^2"),
+    "air_density_kg_m3": (1e-4, 100.0, "kg/m^3"),
+    "drag_torque_coeff": (0.0, 1e4, "N m s or N m s^2"),
+    "weight_rate": (1e-9, 1e9, ""),
+    "weight_attitude": (1e-9, 1e9, ""),
+    "weight_thrust": (1e-9, 1e9, ""),
+    "disturbance_torque_psd_n2_m2_s": (1e-15, 1e6, "N^2 m^2 s"),
+    "disturbance_time_constant_s": (1e-4, 100.0, "s"),
+    "min_thrust_to_weight": (1e-3, 100.0, ""),
+    "gyro_full_scale_rad_s": (1e-3, 1e4, "rad/s"),
+    "thrust_ratio": (0.0, 1e6, ""),
+}
+#: Most rotors, parts and failure cases in one file (an 18-rotor vehicle needs more; say so in
+#: an issue). The analysis time grows with the rotor count (pairs of 16 rotors: 136 cases).
+MAX_ROTORS = 16
+MAX_PARTS = 500
+MAX_FAILURE_CASES = 100
+
+
+def _bound_field(where: str) -> str:
+    """The field name of a problem path: ``rotor[2].position_m[1]`` -> ``position_m``;
+    ``failure_case[0].thrust_ratio.m1`` -> ``thrust_ratio``."""
+    parts = where.split(".")
+    for part in reversed(parts):
+        name = part.split("[", 1)[0]
+        if name in BOUNDS:
+            return name
+    return ""
+
+
+def _fmt_limit(x: float) -> str:
+    return f"{x:g}"
+
 
 # Validation
 # ---------------------------------------------------------------------------------------------
@@ -220,6 +276,19 @@ class _Collector:
         if kind == "fraction" and not 0 < x <= 1:
             self.bad(where, value, "a number in (0, 1]")
             return None
+        bound = BOUNDS.get(_bound_field(where))
+        if bound is not None and x != 0:
+            lo, hi, unit = bound
+            if not lo <= abs(x) <= hi:
+                unit = f" {unit}" if unit else ""
+                if kind in ("num", "vec3") or where.split(".")[-1].startswith("inertia_kg_m2["):
+                    allowed = (f"a magnitude between {_fmt_limit(lo)} and {_fmt_limit(hi)}{unit}"
+                               if lo > 0 else f"a number between -{_fmt_limit(hi)} and "
+                               f"{_fmt_limit(hi)}{unit}")
+                else:
+                    allowed = f"a number between {_fmt_limit(lo)} and {_fmt_limit(hi)}{unit}"
+                self.bad(where, value, allowed + " (limits in README, Limits)")
+                return None
         if kind == "nonneg" and x == 0:
             self.warn(f"{where} = 0 is an idealisation; check that it is meant")
         return x
@@ -394,6 +463,11 @@ def _validate(data: dict, c: _Collector) -> dict[str, Any]:
     out["environment"] = env
 
     # parts
+    for name, most in (("part", MAX_PARTS), ("rotor", MAX_ROTORS),
+                       ("failure_case", MAX_FAILURE_CASES)):
+        if array(name) is not None and len(array(name)) > most:
+            c.bad(name, f"{len(array(name))} [[{name}]] tables",
+                  f"at most {most} (limits in README, Limits)")
     parts = []
     for i, raw in enumerate(array("part") or []):
         where = f"part[{i}]"

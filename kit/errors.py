@@ -25,6 +25,12 @@ class EquilibriumNotFound(RotorbookError):
     """No relaxed-hover equilibrium satisfies the equations within the thrust limits."""
 
 
+class AnalysisError(RotorbookError):
+    """An analysis could not be carried out for a design: a numerical routine failed on its
+    figures, or it ran past its time limit. A case that meets one becomes a result with the
+    reason; the message names the figure or field that caused it where that is known."""
+
+
 class OptionError(RotorbookError, ValueError):
     """A command-line option names something the design does not have, or is out of range."""
 

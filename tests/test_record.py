@@ -172,20 +172,29 @@ def test_record_files_and_result(recorded):
 
 
 @kernel
-def test_header_then_checks_first_and_cautions_last(demo_html):
+def test_verdict_and_matrix_first_then_header_then_table_once_and_cautions_last(demo_html):
     body = _body(demo_html)
     for text in ("Demo survey quad", "<td>A</td>", "dcf5aa1c062744d5", "rotorbook 0.1.0",
-                 "demo author", "demo checker"):
+                 "demo author", "demo checker", "Invented example: H-frame survey quad"):
         assert text in body
     assert re.search(r"<th>Date \(UTC\)</th><td>\d{4}-\d\d-\d\d</td>", body)
-    checks, first_cell, cautions = (body.index("Design checks: 1 of 2 met"),
-                                    body.index('class="rb-cell'), body.index("<h2>Cautions</h2>"))
-    assert checks < first_cell < cautions
+    verdict, matrix, meta, table, first_cell, cautions = (
+        body.index("Verdict: FAIL"), body.index('class="rb-matrix"'),
+        body.index('class="rb-meta"'), body.index('class="rb-all-checks"'),
+        body.index('class="rb-cell'), body.index("<h2>Cautions</h2>"))
+    assert verdict < matrix < meta < table < first_cell < cautions
     assert body.rindex('class="rb-cell') < cautions
     assert "tethered" in body[cautions:] and "kill switch" in body[cautions:]
     assert "not a flight clearance" in body[cautions:]
-    top = body[checks:first_cell]
-    assert "hover thrust fraction" in top and "rotor 1 failed" in top and "FAIL" in top
+    # the matrix: the failing case first and marked governing; each value coloured by status
+    m = body[matrix:body.index("</table>", matrix)]
+    assert m.index("rotor 1 failed") < m.index(">design<")
+    assert m.index("governing") < m.index(">design<")
+    assert 'class="rb-fail"' in m and 'class="rb-pass"' in m
+    # the full table once (folded), the body points to the top instead of repeating it
+    assert body.count("hover thrust fraction</td>") == 1
+    assert "are at the top of this record" in body[first_cell:]
+    assert body.count("<h2>Cautions</h2>") + body.count("<h3>Cautions</h3>") == 1
 
 
 @kernel
@@ -228,7 +237,8 @@ def test_failed_workbook_gets_a_failed_banner_at_the_top(fail_html, recorded):
     assert "FAILED" in banner and "ValueError: rotor data out of range" in banner
     assert "in cell 5" in banner
     assert "not run: the workbook stopped at cell 5" in body
-    assert "no design checks in this workbook" in body
+    assert "carries no verdict" in banner.replace("\n", " ")
+    assert "Verdict:" not in body and 'content="FAILED"' in fail_html
     index = (recorded[1] / "index.html").read_text(encoding="utf-8")
     assert "FAILED" in index and 'href="record_fail.html"' in index
 
@@ -301,3 +311,93 @@ def test_new_folder_refuses_a_non_empty_folder_and_a_bad_design(tmp_path):
     with pytest.raises(DesignError):
         new_folder(tmp_path / "bad", BAD_DESIGN, template_dir=FIXTURES)
     assert not (tmp_path / "bad").exists()
+
+
+# -- a record holds only what its own run computed ------------------------------------------------
+
+#: Numbers stored in the stale template below; none may reach a record (invented values).
+STALE_NUMBERS = ("1.245", "46 of 47", "8675309", "31.4159", "0.4242")
+
+
+def _cannot_hover(folder: Path) -> Path:
+    """The demo survey quad with its rotors weakened to thrust-to-weight of about 0.75."""
+    text = DESIGN.read_text(encoding="utf-8").replace("max_thrust_n = 8.0", "max_thrust_n = 2.4")
+    path = folder / "cannot_hover.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def _stale_template(folder: Path) -> Path:
+    """A template whose stored outputs come from another run, failing in its third cell."""
+    from nbformat.v4 import new_code_cell, new_markdown_cell, new_notebook, new_output
+
+    folder.mkdir()
+    stale_checks = [{"name": "thrust-to-weight", "value": 31.4159, "limit": 2.0, "passed": True,
+                     "unit": "", "case": "", "relation": ">="}]
+    params = new_code_cell('DESIGN_PATH = "x.toml"', metadata={"tags": ["parameters"]},
+                           outputs=[new_output("stream", name="stdout", text="mass 1.245 kg\n")])
+    third = new_code_cell(
+        "from kit.analysis.report import analyze_file\n"
+        "report = analyze_file(DESIGN_PATH)\n"
+        "tw = report.hover.thrust_to_weight\n"
+        "assert tw >= 1, f'thrust-to-weight {tw:.2f}: the design cannot hover'",
+        execution_count=3,
+        outputs=[new_output("display_data", data={"text/html": "<b>46 of 47 met</b>",
+                                                  "text/plain": "46 of 47"})])
+    fourth = new_code_cell(
+        "from kit import workbook as wb\nwb.Checks(report.checks)", execution_count=4,
+        outputs=[new_output("display_data", data={
+            "application/vnd.rotorbook.checks+json": stale_checks,
+            "text/html": "<p>checks 8675309</p>", "text/plain": "46 of 47 checks passed"})])
+    fifth = new_code_cell("print(round(0.2121 * 2, 4))", execution_count=5,
+                          outputs=[new_output("stream", name="stdout", text="0.4242\n")])
+    nb = new_notebook(cells=[new_markdown_cell("# Stale fixture"), params, third, fourth, fifth])
+    path = folder / "stale.ipynb"
+    nbformat.write(nb, path)
+    return folder
+
+
+@kernel
+def test_stale_outputs_never_reach_a_failed_record(tmp_path):
+    design = _cannot_hover(tmp_path)
+    templates = _stale_template(tmp_path / "templates")
+    out = tmp_path / "r"
+    result = record_design(design, out_dir=out, template_dir=templates, timeout=120)
+    assert not result.ok
+    assert result.records[0].failure.ename == "AssertionError"
+    assert "cannot hover" in result.records[0].failure.evalue
+    for page in ("stale.html", "index.html"):
+        html = (out / page).read_text(encoding="utf-8")
+        body = _body(html)
+        for stale in STALE_NUMBERS:
+            assert stale not in body, (page, stale)
+        assert "FAILED" in body[:body.index("rb-sheet-head")]
+    nb = json.loads((out / "stale.ipynb").read_text(encoding="utf-8"))
+    text = json.dumps(nb)
+    for stale in STALE_NUMBERS:
+        assert stale not in text
+    # the template itself keeps its stored outputs (the record cleared a copy)
+    assert "8675309" in (templates / "stale.ipynb").read_text(encoding="utf-8")
+
+
+def test_clear_outputs_leaves_sources_and_template_alone():
+    nb = nbformat.read(FIXTURES / "record_demo.ipynb", as_version=4)
+    nb.cells[2].outputs = [nbformat.v4.new_output("stream", name="stdout", text="1.245\n")]
+    nb.cells[2].execution_count = 7
+    cleared = ex.clear_outputs(nb)
+    assert all(c.get("outputs", []) == [] for c in cleared.cells)
+    assert all(c.get("execution_count") is None for c in cleared.cells if c.cell_type == "code")
+    assert [c.source for c in cleared.cells] == [c.source for c in nb.cells]
+    assert nb.cells[2].outputs  # a copy was cleared
+
+
+def test_new_folder_writes_workbooks_without_outputs(tmp_path):
+    templates = tmp_path / "t"
+    templates.mkdir()
+    nb = nbformat.read(FIXTURES / "record_demo.ipynb", as_version=4)
+    nb.cells[2].outputs = [nbformat.v4.new_output("stream", name="stdout", text="1.245 kg\n")]
+    nbformat.write(nb, templates / "demo.ipynb")
+    folder = new_folder(tmp_path / "quad", DESIGN, template_dir=templates)
+    made = nbformat.read(folder / "demo.ipynb", as_version=4)
+    assert all(c.get("outputs", []) == [] for c in made.cells)
+    assert "1.245" not in (folder / "demo.ipynb").read_text(encoding="utf-8")

@@ -22,9 +22,8 @@ from nbformat.v4 import new_code_cell, new_markdown_cell, new_notebook
 HERE = Path(__file__).resolve().parent
 
 CAUTION_MD = (
-    "> **Caution.** This workbook is a calculation, not a flight clearance. Flight with failed "
-    "rotors can hurt people: flight-test failure cases tethered or in a net, with a kill switch, "
-    "away from people, and follow local aviation rules and licensed practice."
+    "> **Caution.** This workbook is a calculation, not a flight clearance; read the cautions "
+    "that close it before any flight test."
 )
 
 PARAMS_NOTE = "# parameters: the only cell to edit; a record injects its own DESIGN_PATH below\n"
@@ -232,13 +231,17 @@ def wheel_nb():
         code("wb.Equations(veh.structure)"),
         md("## Wheel study"),
         code("""
+from kit.analysis.hover import analyse_hover
 from kit.analysis.wheel import wheel_study
 
 study = wheel_study(veh)
-study
+display(study)
+if study.available:
+    display(wb.GyroscopicTorque(study, analyse_hover(veh)))
 """),
-        md("## Explore\nThe slider moves along the precomputed H2-ratio curve of the chosen case."),
-        code("panels.WheelPanel(veh, study=study)"),
+        md("## Explore\nThe slider moves along the precomputed H2-ratio curve of the chosen case "
+           "(for a design with a wheel)."),
+        code("panels.WheelPanel(veh, study=study) if study.available else None"),
         md("## Design checks"),
         code("""
 from kit.analysis.checks import wheel_checks
@@ -268,7 +271,11 @@ from kit.analysis.report import analyze
 report = analyze(opened.design)
 report
 """),
-        code("display(report.hover, report.spin, report.wheel)"),
+        code("""
+display(report.hover, report.spin)
+if opened.design.wheel is not None:
+    display(report.wheel, wb.GyroscopicTorque(report.wheel, report.hover))
+"""),
         md("## Recovery from every failure, flown, worst first"),
         code("""
 from IPython.display import HTML
@@ -285,9 +292,15 @@ for c in report.cases:
     if c.gains is not None:
         display(c.gains)
 """),
-        md("## Placement of the heaviest part\nThe part is moved over a 5 x 5 grid in x and y; "
-           "each point recomputes mass properties, equilibria, control and risk."),
-        code("panels.PlacementPanel(veh, points=5, compute=True)"),
+        md("## Placement of the heaviest part\nThe heaviest part by mass is moved over a 5 x 5 "
+           "grid in x and y; each point recomputes mass properties, equilibria, control and "
+           "risk."),
+        code("""
+parts = opened.design.parts
+heaviest = max(parts, key=lambda p: p.mass_kg).name if parts else None
+print(f"heaviest part: {heaviest}" if heaviest else "no parts (a measured [body]): nothing to move")
+panels.PlacementPanel(veh, part=heaviest, points=5, compute=True) if heaviest else None
+"""),
         md("## Summary of the design checks"),
         code("wb.Checks(report.checks)"),
         *CLOSE,

@@ -75,10 +75,47 @@ def case_checks(eq, ctl, risk, review) -> list[Check]:
     out.append(is_true("reduced model controllable", ctl.controllable, case))
     out.append(is_true("LQR closed loop stable", ctl.stable, case))
     out += robustness_checks(ctl, review, case)
-    p = risk.probability_per_s if risk is not None else math.nan
-    out.append(at_most("saturation probability", p, review.max_saturation_probability,
-                       "per s", case))
+    # a rate, compared with the review's limit read as a rate (1/s); for rare saturation the
+    # rate and the probability within one second agree (p = 1 - exp(-rate * 1 s))
+    rate = risk.crossing_rate_per_s if risk is not None else math.nan
+    out.append(at_most("thrust-saturation rate", rate, review.max_saturation_probability,
+                       "1/s", case))
     return out
+
+
+def margin(c: Check) -> float:
+    """How far a check is from its limit, relative to the limit: >= 0 passes, < 0 fails.
+
+    ``(value - limit) / |limit|`` for ``>=``, ``(limit - value) / |limit|`` for ``<=`` (the
+    absolute difference when the limit is 0); +1 / -1 for a check that is true or false; -inf
+    when there is no finite value.
+    """
+    if c.relation == "==" or isinstance(c.value, bool) or isinstance(c.limit, bool):
+        return 1.0 if c.passed else -1.0
+    if c.value is None or c.limit is None:
+        return -math.inf
+    v, lim = float(c.value), float(c.limit)
+    if not (math.isfinite(v) and math.isfinite(lim)):
+        return -math.inf
+    diff = v - lim if c.relation == ">=" else lim - v
+    return diff / abs(lim) if lim != 0 else diff
+
+
+def verdict(checks) -> dict:
+    """The verdict over design checks: ``{"result": "pass" | "fail" | "none", "checks": n,
+    "failed": n, "failed_checks": [{"name", "case", "value", "limit", "relation", "unit"}]}``.
+
+    "none" when there is no check at all (nothing was judged).
+    """
+    checks = list(checks)
+    failed = [c for c in checks if not c.passed]
+    result = "none" if not checks else ("fail" if failed else "pass")
+    rows = []
+    for c in failed:
+        d = c.to_dict()
+        rows.append({k: d[k] for k in ("name", "case", "value", "limit", "relation", "unit")})
+    return {"result": result, "checks": len(checks), "failed": len(failed),
+            "failed_checks": rows}
 
 
 def wheel_checks(study) -> list[Check]:

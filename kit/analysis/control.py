@@ -124,8 +124,8 @@ class LinearControl:
     def __repr__(self) -> str:
         state = "controllable" if self.controllable else "not controllable"
         stab = "LQR stable" if self.stable else "no stabilising LQR"
-        return (f"<LinearControl: {state} (PBH distance {self.controllability_distance:.3g}), "
-                f"{stab}, H2 {self.h2_norm:.4g}>")
+        return (f"<LinearControl: {state} (controllability distance "
+                f"{self.controllability_distance:.3g}), {stab}, H2 {self.h2_norm:.4g}>")
 
     @property
     def open_loop_poles(self) -> np.ndarray:

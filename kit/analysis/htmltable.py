@@ -8,6 +8,13 @@ import math
 import numpy as np
 
 CSS_CLASS = "rb-table"
+#: Magnitudes below this print as 0: rounding noise of a computation (1.1e-16 from a
+#: difference of equal numbers), far below any figure a design file can give (README, Limits).
+ROUNDING_ZERO = 1e-13
+#: Status colours (text, background): blue for PASS, vermillion for FAIL, told apart with every
+#: common colour-vision deficiency and in greyscale; the status is also written as a word.
+PASS_COLOURS = ("#163f73", "#e4edf8")
+FAIL_COLOURS = ("#8f2d00", "#fde3d3")
 
 
 def num(x, sig: int = 4) -> str:
@@ -22,7 +29,7 @@ def num(x, sig: int = 4) -> str:
     x = float(x)
     if not math.isfinite(x):
         return "\u2013" if math.isnan(x) else ("\u221e" if x > 0 else "\u2212\u221e")
-    if x == 0:
+    if abs(x) < ROUNDING_ZERO:
         return "0"
     return f"{x:.{sig}g}"
 
@@ -45,7 +52,10 @@ def table(headers, rows, caption: str = "") -> str:
 
 
 def verdict(ok: bool) -> tuple:
-    return ("raw", '<b class="rb-pass">PASS</b>' if ok else '<b class="rb-fail">FAIL</b>')
+    fg, bg = PASS_COLOURS if ok else FAIL_COLOURS
+    style = f'style="color:{fg};background:{bg};padding:0 .3rem"'
+    return ("raw", f'<b class="rb-pass" {style}>&#10003; PASS</b>' if ok
+            else f'<b class="rb-fail" {style}>&#10007; FAIL</b>')
 
 
 def hover_html(h) -> str:
@@ -86,8 +96,8 @@ def equilibrium_html(eq) -> str:
 
 def control_html(c) -> str:
     rows = [("controllable", c.controllable), ("controllability rank", c.controllability_rank),
-            ("distance to uncontrollability (relative)", c.controllability_distance),
-            ("H2 norm, torque x/y to n_x, n_y", c.h2_norm)]
+            ("controllability distance (relative)", c.controllability_distance),
+            ("H2 norm, torque x/y to n_x, n_y (rad per N m per sqrt(Hz))", c.h2_norm)]
     if c.closed_loop_poles is not None:
         rows.append(("closed-loop poles", ", ".join(
             f"{num(p.real)}{'+' if p.imag >= 0 else '-'}{num(abs(p.imag))}j"
@@ -103,8 +113,8 @@ def risk_html(r) -> str:
     t = table(["rotor", "thrust std (N)", "thrust-rate std (N/s)", "margin up (N)",
                "margin down (N)"], rows, "Thrust deviations under gusts")
     return t + table(["figure", "value"], [
-        ("crossing rate (1/s)", r.crossing_rate_per_s),
-        ("saturation probability per second", r.probability_per_s)])
+        ("thrust-saturation rate (1/s)", r.crossing_rate_per_s),
+        ("probability of at least one saturation within 1 s", r.probability_per_s)])
 
 
 def wheel_html(w) -> str:

@@ -7,17 +7,23 @@ renamed).
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
+import signal
+import threading
+import time
 from dataclasses import dataclass
 from pathlib import Path
+
+import numpy as np
 
 from kit import __version__
 from kit.analysis import checks as checks_mod
 from kit.analysis.control import Gains, LinearControl, design_control, gains
 from kit.analysis.equilibrium import Equilibrium, all_cases, solve
 from kit.analysis.hover import Hover, analyse_hover
-from kit.analysis.htmltable import checks_html, num, table
+from kit.analysis.htmltable import num, table
 from kit.analysis.montecarlo import GustMonteCarlo, gust_monte_carlo
 from kit.analysis.risk import SaturationRisk, saturation_risk
 from kit.analysis.simulate import SimulationResult, simulate_failure
@@ -31,10 +37,80 @@ from kit.analysis.spin import (
 from kit.analysis.vehicle import Vehicle
 from kit.analysis.wheel import WheelStudy, wheel_study
 from kit.design import Design, load
-from kit.errors import EquilibriumNotFound
+from kit.errors import AnalysisError, DesignError, EquilibriumNotFound
 from kit.massprops import rotor_table
 
 SCHEMA = "rotorbook.analysis/1"
+
+#: Longest time one case (equilibrium, control, risk) may take, in s; a case that runs longer is
+#: reported as a result without an equilibrium, with the reason. A demo case takes well under
+#: 1 s; 20 s leaves room for slow machines (common practice, no source).
+CASE_TIME_LIMIT_S = 20.0
+#: Longest time the wheel study of a design may take, in s (it solves every case at 21 wheel
+#: momenta).
+WHEEL_TIME_LIMIT_S = 120.0
+#: Numerical failures that make a case a result with a reason instead of an exception.
+NUMERICAL_ERRORS = (np.linalg.LinAlgError, ValueError, ArithmeticError, RecursionError,
+                    AnalysisError)
+
+
+@contextlib.contextmanager
+def time_box(seconds: float, what: str):
+    """Raise :class:`~kit.errors.AnalysisError` when the block runs past ``seconds`` of wall time.
+
+    Uses ``SIGALRM`` and works in the main thread of a POSIX process only (a workbook kernel,
+    the command line, a process-pool worker); elsewhere the block runs without a limit. An
+    outer ``SIGALRM`` timer (another time box, a test's limit) is kept: when it is due first,
+    its own handler runs, and it is re-armed with the time it has left afterwards.
+    """
+    usable = (seconds > 0 and hasattr(signal, "setitimer")
+              and threading.current_thread() is threading.main_thread())
+    if not usable:
+        yield
+        return
+    outer_left = signal.getitimer(signal.ITIMER_REAL)[0]
+    outer_first = 0.0 < outer_left < seconds
+    start = time.monotonic()
+
+    def _expired(signum, frame):
+        if outer_first and callable(old):
+            old(signum, frame)
+        raise AnalysisError(f"{what}: stopped after the time limit of {seconds:g} s")
+
+    old = signal.signal(signal.SIGALRM, _expired)
+    signal.setitimer(signal.ITIMER_REAL, outer_left if outer_first else seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0.0)
+        signal.signal(signal.SIGALRM, old)
+        if outer_left > 0.0:
+            left = outer_left - (time.monotonic() - start)
+            signal.setitimer(signal.ITIMER_REAL, max(left, 1e-3))
+
+
+def _reason(exc: BaseException) -> str:
+    if isinstance(exc, AnalysisError):
+        return str(exc)
+    text = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+    return f"numerical failure ({type(exc).__name__}{': ' + text[:160] if text else ''})"
+
+
+def finite_mass_properties(design: Design, mp) -> None:
+    """Raise DesignError naming the figure when the mass properties are not finite numbers."""
+    problems = []
+    figures = (("mass_kg", "mass", mp.mass_kg), ("com_m", "centre of mass", mp.com_m),
+               ("inertia_kg_m2", "inertia about the centre of mass", mp.inertia_kg_m2),
+               ("principal_moments_kg_m2", "principal moments", mp.principal_moments_kg_m2),
+               ("rotor_positions_m", "rotor positions about the centre of mass",
+                mp.rotor_positions_m))
+    for key, label, value in figures:
+        arr = np.asarray(value, dtype=float)
+        if not np.all(np.isfinite(arr)):
+            problems.append(f"mass properties.{key}: the {label} is not a finite number -> part "
+                            "and rotor masses, positions and sizes within the limits in README")
+    if problems:
+        raise DesignError(problems, path=design.source or None)
 
 
 def plain(obj):
@@ -90,6 +166,8 @@ class CaseResult:
             "control_note": c["note"],
             "saturation_probability_per_s": None if self.risk is None
             else float(self.risk.probability_per_s),
+            "saturation_rate_per_s": None if self.risk is None
+            else float(self.risk.crossing_rate_per_s),
             "saturation": None if self.risk is None else self.risk.to_dict(),
             "checks": [k.to_dict() for k in self.checks],
             "robustness": c["robustness"],
@@ -100,9 +178,20 @@ class CaseResult:
         return d
 
 
+def unsolved(veh: Vehicle, failed=(), thrust_ratio=None, reason: str = "") -> Equilibrium:
+    """The result of a case that could not be solved: no equilibrium, with the reason."""
+    from kit.analysis import equilibrium as eq_mod
+
+    return eq_mod._make(veh, tuple(failed), thrust_ratio, False, reason)
+
+
 def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
-                 simulate: bool = False) -> CaseResult:
+                 simulate: bool = False,
+                 time_limit_s: float = CASE_TIME_LIMIT_S) -> CaseResult:
     """Equilibrium, linear control, saturation risk, gains and checks for one failure case.
+
+    A case whose solve fails numerically or runs past ``time_limit_s`` (s) is a result without
+    an equilibrium whose reason says so; it fails the check "equilibrium within thrust limits".
 
     Parameters
     ----------
@@ -113,17 +202,28 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
     thrust_ratio : dict or None
         Fixed thrust ratios of the working rotors.
     hint : tuple or None
-        Starting point for the equilibrium solver.
+        Accepted for compatibility; the operating point depends on the design alone.
     simulate : bool
         For a failure case, simulate the recovery from hover
         (:func:`kit.analysis.simulate.simulate_failure`) and add its checks.
+    time_limit_s : float
+        Time box of the equilibrium, control and risk of this case, in s.
     """
     c = veh.design.control
-    eq = solve(veh, failed, thrust_ratio, hint=hint)
-    ctl = design_control(veh, eq)
     fmin = [r.min_thrust_n for r in veh.design.rotors]
-    risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
-                           c.disturbance_time_constant_s, min_thrust_n=fmin)
+    try:
+        with time_box(time_limit_s, "equilibrium and control of this case"):
+            eq = solve(veh, failed, thrust_ratio, hint=hint)
+            ctl = design_control(veh, eq)
+            risk = saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
+                                   c.disturbance_time_constant_s, min_thrust_n=fmin)
+            if risk is not None and not math.isfinite(risk.crossing_rate_per_s):
+                raise AnalysisError("thrust-saturation rate is not a finite number (from "
+                                    "control.disturbance_torque_psd_n2_m2_s and the LQR weights)")
+    except NUMERICAL_ERRORS as exc:
+        eq = unsolved(veh, failed, thrust_ratio, _reason(exc))
+        ctl = design_control(veh, eq)
+        risk = None
     checks = checks_mod.case_checks(eq, ctl, risk, veh.design.review)
     sim, note = None, ""
     if simulate and failed:
@@ -247,6 +347,11 @@ class DesignReport:
     def passed(self) -> bool:
         return all(c.passed for c in self.checks)
 
+    @property
+    def verdict(self) -> dict:
+        """``{"result": "pass" | "fail", "checks", "failed", "failed_checks": [...]}``."""
+        return checks_mod.verdict(self.checks)
+
     def case(self, failed=(), thrust_ratio=None) -> CaseResult | None:
         for c in self.cases:
             if set(c.eq.failed) == set(failed) and c.eq.thrust_ratio == thrust_ratio:
@@ -285,6 +390,7 @@ class DesignReport:
                 for c in self.worst_first],
             "gust_monte_carlo": None if self.gust is None else self.gust.to_dict(),
             "gains": [c.gains.to_dict() for c in self.cases if c.gains is not None],
+            "verdict": self.verdict,
             "assumptions": [
                 "rotor speeds follow thrust commands at once (no rotor acceleration torque)"
                 if not any(r.motor_time_constant_s > 0 for r in d.rotors) else
@@ -310,12 +416,12 @@ class DesignReport:
             if not eq.found:
                 lines.append(f"    {eq.label}: no equilibrium ({eq.reason})")
                 continue
-            p = c.risk.probability_per_s if c.risk is not None else float("nan")
+            rate = c.risk.crossing_rate_per_s if c.risk is not None else None
             lines.append(
-                f"    {eq.label}: spin {eq.spin_rate_rad_s:+.3g} rad/s, tilt {eq.tilt_deg:.3g}"
-                f" deg, max thrust {eq.thrust_n.max():.3g} N, "
+                f"    {eq.label}: spin rate about n {num(eq.spin_rate_rad_s, 3)} rad/s, tilt "
+                f"{num(eq.tilt_deg, 3)} deg, max thrust {num(float(eq.thrust_n.max()), 3)} N, "
                 f"{'controllable' if c.ctl.controllable else 'NOT controllable'}, "
-                f"P(sat) {p:.2g}/s")
+                f"thrust-saturation rate {num(rate, 2)} 1/s")
             if eq.authority is not None:
                 lines.append(f"      static authority {eq.authority.index:.3g}; {eq.chosen_by}")
             if eq.runner_up is not None:
@@ -331,9 +437,16 @@ class DesignReport:
                          f"{f.thrust_coeff_n_s2:.4g}, torque_per_thrust_m "
                          f"{f.torque_per_thrust_m:.4g}")
         if self.wheel.available:
+            m = self.hover.torque_margin_n_m
             lines.append(f"  wheel: h_max {self.wheel.h_max_n_m_s:.3g} N m s, "
-                         f"{len(self.wheel.flags)} flag(s)")
+                         f"{len(self.wheel.flags)} flag(s); gyroscopic torque "
+                         f"{num(self.wheel.gyro_torque_n_m, 3)} N m against roll/pitch "
+                         f"authority {num(float(min(m[0], m[1])), 3)} N m")
         failed = [c for c in self.checks if not c.passed]
+        v = self.verdict
+        lines.insert(1, f"  verdict: {v['result'].upper()} ("
+                     + (f"{v['failed']} of {v['checks']} design checks failed)" if v["failed"]
+                        else f"all {v['checks']} design checks met)"))
         lines.append(f"  checks: {len(self.checks) - len(failed)} of {len(self.checks)} passed")
         for c in failed:
             lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
@@ -364,23 +477,29 @@ class DesignReport:
                          eq.tilt_deg if eq.found else None,
                          float(eq.thrust_n.max()) if eq.found else None,
                          c.ctl.controllable, c.ctl.h2_norm,
-                         c.risk.probability_per_s if c.risk is not None else None,
+                         c.risk.crossing_rate_per_s if c.risk is not None else None,
                          eq.authority.index if eq.authority is not None else None,
                          eq.chosen_by or None,
                          None if eq.runner_up is None else
                          f"{eq.runner_up.kind}, spin {eq.runner_up.spin_rate_rad_s:+.3g} rad/s"))
-        t = table(["case", "equilibrium", "spin (rad/s)", "tilt (deg)", "max thrust (N)",
-                   "controllable", "H2 norm", "P(sat) per s", "static authority",
+        t = table(["case", "equilibrium", "spin rate about n (rad/s)", "tilt (deg)",
+                   "max thrust (N)", "controllable", "H2 norm (rad per N m per sqrt(Hz))",
+                   "thrust-saturation rate (1/s)", "static authority",
                    f"chosen by (rule {self.design.control.operating_point})",
                    "runner-up within 5 %"], rows, "Cases")
         d = self.design
+        v = self.verdict
         head = f"<h4>{html.escape(d.name)} (revision {html.escape(d.revision)})</h4>"
+        line = (f"<p><b>Verdict: {v['result'].upper()}</b> &#8212; "
+                + (f"{v['failed']} of {v['checks']} design checks failed"
+                   if v["failed"] else f"all {v['checks']} design checks met")
+                + " (the checks table is in the summary of the design checks).</p>")
         if self.load_cases:
             t += table(["load case", "checks passed", "of"],
                        [(lc.label, sum(k.passed for k in lc.checks), len(lc.checks))
                         for lc in self.load_cases], "Degraded-rotor and low-battery load cases")
         extra = self.transients_html() if any(c.eq.failed for c in self.cases) else ""
-        return head + checks_html(self.checks) + t + extra
+        return head + line + t + extra
 
 
 def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
@@ -402,7 +521,14 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
         Run the Monte-Carlo gust comparison at the no-failure operating point.
     """
     veh = Vehicle.from_design(design)
-    hover = analyse_hover(veh)
+    finite_mass_properties(design, veh.mp)
+    try:
+        with time_box(CASE_TIME_LIMIT_S, "hover analysis"):
+            hover = analyse_hover(veh)
+    except NUMERICAL_ERRORS as exc:
+        raise DesignError([f"hover analysis: {_reason(exc)} -> rotor positions, max_thrust_n "
+                           "and masses within the limits in README"],
+                          path=design.source or None) from None
     todo = all_cases(veh)
     results = []
     for i, (f, r) in enumerate(todo):
@@ -411,7 +537,16 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
             progress(i + 1, len(todo))
     cases = tuple(results)
     spin = spin_section(veh, [c.eq for c in cases])
-    study = wheel_study(veh, executor=executor) if wheel else wheel_study(veh, cases=[])
+    try:
+        with time_box(WHEEL_TIME_LIMIT_S, "wheel study"):
+            # cases without an equilibrium already fail their check; the wheel study would
+            # only search again at every wheel momentum
+            solvable = [(c.eq.failed, c.eq.thrust_ratio) for c in cases if c.eq.found]
+            study = (wheel_study(veh, cases=solvable, executor=executor) if wheel
+                     else wheel_study(veh, cases=[]))
+    except NUMERICAL_ERRORS as exc:
+        study = WheelStudy(False, "wheel study not carried out: " + _reason(exc), 0.0, 0.0, 0.0,
+                           0.0, 0.0, 0.0, ())
     checks = list(checks_mod.hover_checks(hover, design.review))
     for c in cases:
         checks += c.checks

@@ -188,12 +188,14 @@ def wheel_curve(veh: Vehicle, failed=(), thrust_ratio=None, h_grid=None) -> Whee
         if not math.isfinite(spin[i]):
             flags.append(f"h = {h:+.3g} N m s: no equilibrium")
         elif dist[i] < DEGENERACY_TOL:
-            flags.append(f"h = {h:+.3g} N m s: near-uncontrollable (PBH distance {dist[i]:.1e})")
+            flags.append(f"h = {h:+.3g} N m s: near-uncontrollable (controllability distance "
+                         f"{dist[i]:.1e})")
         elif (0 < i < n - 1 and np.all(np.isfinite(dist[i - 1:i + 2]))
               and dist[i] < min(dist[i - 1], dist[i + 1])
               and dist[i] < DIP_FRACTION * dist[i0]):
             flags.append(f"h = {h:+.3g} N m s: passes close to a controllability degeneracy "
-                         f"(PBH distance {dist[i]:.1e}, {dist[i] / dist[i0]:.0%} of h = 0); "
+                         f"(controllability distance {dist[i]:.1e}, "
+                         f"{dist[i] / dist[i0]:.0%} of h = 0); "
                          f"H2 ratio {ratio[i]:.3g}")
     return WheelCurve(tuple(failed), thrust_ratio, np.asarray(h_grid, float), h2, ratio,
                       ratio_fixed, spin, dist, tuple(flags))

@@ -75,9 +75,27 @@ def design_path_line(path: str) -> str:
     return f"DESIGN_PATH = {json.dumps(str(path))}"
 
 
-def inject_parameters(nb, design_path: Path):
-    """A copy of ``nb`` with the ``injected-parameters`` cell after the ``parameters`` cell."""
+def clear_outputs(nb):
+    """A copy of ``nb`` without any stored output, execution count or widget state.
+
+    A template's stored outputs come from another run (its demo design, an older kit): a
+    record executes the template with them cleared, so that it holds only what its own run
+    computed, and a cell that does not run shows nothing.
+    """
     nb = copy.deepcopy(nb)
+    nb.metadata.pop("widgets", None)
+    for cell in nb.cells:
+        if cell.cell_type == "code":
+            cell.outputs = []
+            cell.execution_count = None
+        cell.get("metadata", {}).pop("execution", None)
+    return nb
+
+
+def inject_parameters(nb, design_path: Path):
+    """A copy of ``nb``, outputs cleared (:func:`clear_outputs`), with the
+    ``injected-parameters`` cell after the ``parameters`` cell."""
+    nb = clear_outputs(nb)
     nb.cells = [c for c in nb.cells if INJECTED_TAG not in c.get("metadata", {}).get("tags", [])]
     i = parameters_index(nb)
     cell = nbformat.v4.new_code_cell(
@@ -90,15 +108,13 @@ def inject_parameters(nb, design_path: Path):
 
 
 def rewrite_parameters(nb, design_path: str):
-    """A copy of ``nb`` whose ``parameters`` cell sets ``DESIGN_PATH`` to ``design_path``."""
-    nb = copy.deepcopy(nb)
+    """A copy of ``nb``, outputs cleared, whose ``parameters`` cell sets ``DESIGN_PATH`` to
+    ``design_path``."""
+    nb = clear_outputs(nb)
     cell = nb.cells[parameters_index(nb)]
     line = design_path_line(design_path)
     src, n = re.subn(r"(?m)^DESIGN_PATH\s*=.*$", lambda _m: line, cell.source)
     cell.source = src if n else (src.rstrip("\n") + "\n" + line).lstrip("\n")
-    if cell.cell_type == "code":
-        cell.outputs = []
-        cell.execution_count = None
     return nb
 
 
@@ -171,7 +187,10 @@ class Kernel:
             spec_dir = Path(self._tmp.name) / OWN_KERNEL_NAME
             spec_dir.mkdir()
             (spec_dir / "kernel.json").write_text(json.dumps({
-                "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
+                # log level ERROR: the kernel's start-up notices (e.g. that it talks over TCP
+                # on the loopback without encryption) are not the record's business
+                "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}",
+                         "--IPKernelApp.log_level=ERROR"],
                 "display_name": "Python (rotorbook record)",
                 "language": "python",
             }), encoding="utf-8")

@@ -217,14 +217,27 @@ def format_checks(raw) -> list[dict]:
     return rows
 
 
-def collect_checks(nb) -> list[dict]:
-    """Every design check emitted by the notebook's outputs, in order."""
-    rows: list[dict] = []
+def raw_checks(nb) -> list[dict]:
+    """Every design check emitted by the notebook's outputs, as emitted, in workbook order."""
+    found: list[dict] = []
     for cell in nb.cells:
         for out in cell.get("outputs", []):
-            data = out.get("data", {})
-            if CHECKS_MIME in data:
-                rows += format_checks(data[CHECKS_MIME])
+            raw = out.get("data", {}).get(CHECKS_MIME)
+            if isinstance(raw, str):
+                try:
+                    raw = json.loads(raw)
+                except ValueError:
+                    continue
+            if isinstance(raw, dict):
+                raw = raw.get("checks", [raw])
+            if isinstance(raw, list):
+                found += [c for c in raw if isinstance(c, dict)]
+    return found
+
+
+def collect_checks(nb) -> list[dict]:
+    """Every design check emitted by the notebook's outputs, as display strings."""
+    rows = format_checks(raw_checks(nb))
     # failed checks first (a reviewer reads those first), otherwise in workbook order
     return sorted(rows, key=lambda c: c["passed"])
 
@@ -233,12 +246,21 @@ def _is_bokeh(data: dict) -> bool:
     return BOKEH_EXEC_MIME in data or "Bokeh.embed" in str(data.get("text/html", ""))
 
 
-def prepare_outputs(nb) -> dict:
+#: What a record shows in the body where a workbook displayed its design checks: the verdict,
+#: the matrix and the table are at the top of the record, once.
+CHECKS_POINTER = ('<p class="rb-none">Design checks: the verdict, the cases x checks matrix and '
+                  'the full table are at the top of this record.</p>')
+
+
+def prepare_outputs(nb, lift_checks: bool = False) -> dict:
     """Make the outputs of an executed notebook safe for an offline record, in place.
 
     Drops the BokehJS loader outputs (they point at a CDN; the record inlines BokehJS once in
-    its head instead) and any JavaScript that is not a Bokeh plot's embed script. Returns what
-    the page head needs: ``{"bokeh": bool, "bokeh_mathjax": bool}``.
+    its head instead), any JavaScript that is not a Bokeh plot's embed script, and the
+    cautions output (the record closes with the cautions, once; its cell is hidden). With
+    ``lift_checks`` a design-checks output is replaced by a pointer to the top of the record,
+    where its verdict, matrix and table are shown. Returns what the page head needs:
+    ``{"bokeh": bool, "bokeh_mathjax": bool}``.
     """
     info = {"bokeh": False, "bokeh_mathjax": False}
     for cell in nb.cells:
@@ -249,6 +271,13 @@ def prepare_outputs(nb) -> dict:
                 kept.append(out)
                 continue
             if BOKEH_LOAD_MIME in data:
+                continue
+            if 'data-rb-cautions="1"' in str(data.get("text/html", "")):
+                cell.metadata["rb_hidden"] = True
+                continue
+            if lift_checks and CHECKS_MIME in data:
+                out["data"] = {"text/html": CHECKS_POINTER}
+                kept.append(out)
                 continue
             if _is_bokeh(data):
                 info["bokeh"] = True
@@ -331,16 +360,26 @@ def _exporter():
 def render_record(nb, *, design, workbook: str, date: str, failure: _ex.CellFailure | None,
                   commit: str = "") -> tuple[str, list[dict]]:
     """The HTML record of an executed (and normalised) notebook; also its design checks."""
+    from kit.workbook import check_rows, checks_table_html, matrix_html, verdict_html
+
     nb = nbformat.from_dict(json.loads(json.dumps(nb)))
     checks = collect_checks(nb)
-    info = prepare_outputs(nb)
+    rows = check_rows(raw_checks(nb))
+    info = prepare_outputs(nb, lift_checks=failure is None)
     context = {
         "workbook": workbook,
         "design": {
             "name": design.name, "revision": design.revision, "sha256": design.sha256,
             "file": Path(design.source).name if design.source else "",
             "prepared_by": design.prepared_by or "", "checked_by": design.checked_by or "",
+            "notes": getattr(design, "notes", "") or "",
         },
+        # built by kit.workbook from this run's outputs, every string escaped there
+        "verdict_html": verdict_html(rows) if failure is None else "",
+        "matrix_html": matrix_html(rows) if failure is None else "",
+        "table_html": checks_table_html(rows) if failure is None else "",
+        "verdict": ("FAILED" if failure is not None else "none" if not rows
+                    else "fail" if any(not r["passed"] for r in rows) else "pass"),
         "kit_version": kit.__version__,
         "git_commit": commit,
         "date": date,
@@ -355,34 +394,59 @@ def render_record(nb, *, design, workbook: str, date: str, failure: _ex.CellFail
 
 
 def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRecord]) -> str:
-    """``index.html``: every record in ``out_dir``, with its run status and checks."""
+    """``index.html``: the records of this run, with their run status and design checks.
+
+    Built from this run's results only (never from pages left in ``out_dir`` by another run).
+    """
     rows = []
-    seen = {r.html_path.name for r in current}
     for r in current:
-        status = "FAILED" if not r.ok else "done"
-        checks = (f"{r.checks_total - r.checks_failed} of {r.checks_total} met"
-                  if r.checks_total else "none")
-        rows.append((r.name, r.html_path.name, status, checks))
-    for p in sorted(out_dir.glob("*.html")):
-        if p.name == "index.html" or p.name in seen:
-            continue
-        meta = _record_meta(p)
-        if meta is None:
-            continue
-        status, checks = meta
-        rows.append((p.stem, p.name, "FAILED" if status == "FAILED" else "done", checks))
+        if not r.ok:
+            status, checks = "FAILED", "not evaluated: the workbook failed"
+        elif not r.checks_total:
+            status, checks = "done", "no design checks"
+        else:
+            met = r.checks_total - r.checks_failed
+            status = "done"
+            checks = (f"PASS: all {r.checks_total} met" if not r.checks_failed
+                      else f"FAIL: {r.checks_failed} of {r.checks_total} not met ({met} met)")
+        rows.append((r.name, r.html_path.name, status, checks, r.checks_failed > 0 and r.ok))
     rows.sort(key=lambda r: r[0])
     e = html.escape
+    from kit.analysis.htmltable import FAIL_COLOURS, PASS_COLOURS
+
+    def style(bad: bool) -> str:
+        fg, bg = FAIL_COLOURS if bad else PASS_COLOURS
+        return f' style="color:{fg};background:{bg}"'
+
     body = "\n".join(
         f'<tr><td><a href="{e(href)}">{e(name)}</a></td>'
         f'<td><a href="{e(name)}.ipynb">{e(name)}.ipynb</a></td>'
-        f'<td class="{"rb-fail" if status == "FAILED" else "rb-pass"}">'
+        f'<td class="{"rb-fail" if status == "FAILED" else "rb-pass"}"'
+        f'{style(status == "FAILED")}>'
         f'{"&#10007; FAILED" if status == "FAILED" else "&#10003; ran"}</td>'
-        f'<td>{e(checks)}</td></tr>'
-        for name, href, status, checks in rows
+        f'<td class="{"rb-fail" if bad else "rb-pass"}"{style(bad or status == "FAILED")}>'
+        f"{e(checks)}</td></tr>"
+        for name, href, status, checks, bad in rows
     )
     css = (TEMPLATE_DIR / TEMPLATE_NAME / "record.css").read_text(encoding="utf-8")
     all_ok = all(r[2] != "FAILED" for r in rows)
+    any_fail = any(r[4] for r in rows)
+    if not all_ok:
+        n = sum(r[2] == "FAILED" for r in rows)
+        verdict = (f'<div class="rb-banner" role="alert"><strong>FAILED</strong> &#8212; {n} of '
+                   f"{len(rows)} workbook(s) did not run to the end; their design checks are not "
+                   "evaluated.</div>")
+    elif any_fail:
+        verdict = (f'<div class="rb-verdict"{style(True)}><b>&#10007; Verdict: FAIL</b> &#8212; '
+                   "design checks not met in: " + ", ".join(e(r[0]) for r in rows if r[4])
+                   + ".</div>")
+    elif any(r[3] != "no design checks" for r in rows):
+        verdict = (f'<div class="rb-verdict"{style(False)}><b>&#10003; Verdict: PASS</b> '
+                   "&#8212; every design check met in every record.</div>")
+    else:
+        verdict = ""
+    notes = getattr(design, "notes", "") or ""
+    notes_row = f"<tr><th>Notes</th><td>{e(notes)}</td></tr>" if notes else ""
     return f"""<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -396,12 +460,15 @@ def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRec
 </head>
 <body>
 <main>
+{verdict if not all_ok else ""}
 <header class="rb-sheet-head">
 <div class="rb-kicker">Rotorbook calculation records</div>
-<h1>{e(design.name)}</h1>
+<h1>{e(design.name)} <span class="rb-rev">rev. {e(design.revision)}</span></h1>
+{verdict if all_ok else ""}
 <table class="rb-meta">
 <tr><th>Revision</th><td>{e(design.revision)}</td></tr>
 <tr><th>Design file SHA-256</th><td class="rb-mono">{e(design.sha256)}</td></tr>
+{notes_row}
 <tr><th>Kit</th><td>rotorbook {e(kit.__version__)}</td></tr>
 <tr><th>Date (UTC)</th><td>{e(date)}</td></tr>
 </table>
@@ -535,6 +602,9 @@ def new_folder(dir: str | Path, design_path: str | Path,
                template_dir: str | Path | None = None) -> Path:
     """Make a per-design folder: the design file and every workbook pointed at it.
 
+    The workbooks are written without outputs (a template's stored outputs belong to its demo
+    design) and signed as trusted, so that their figures draw when they are run.
+
     Parameters
     ----------
     dir : str or Path
@@ -576,4 +646,20 @@ def new_folder(dir: str | Path, design_path: str | Path,
     shutil.copy2(src, folder / src.name)
     for name, nb in notebooks.items():
         write_atomic(folder / f"{name}.ipynb", nbformat.writes(nb) + "\n")
+        _sign(nb)
     return folder
+
+
+def _sign(nb) -> None:
+    """Mark a workbook trusted in Jupyter's signature store, so that what it displays when run
+    (figures, widgets) is shown at once; a store that cannot be written is left alone."""
+    import sqlite3
+
+    from nbformat.sign import NotebookNotary
+
+    try:
+        notary = NotebookNotary()
+        notary.sign(nb)
+        notary.store.close()
+    except (OSError, sqlite3.Error, ValueError):  # pragma: no cover - read-only home and the like
+        pass

@@ -187,10 +187,10 @@ def cmd_check(args) -> int:
                 for w in rec["warnings"]:
                     print(f"# warning: {w}")
                 continue
-                print(f"{rec['file']}: valid")
-                print(summary)
-                for w in rec["warnings"]:
-                    print(f"  warning: {w}")
+            print(f"{rec['file']}: valid")
+            print(summary)
+            for w in rec["warnings"]:
+                print(f"  warning: {w}")
     return EXIT_OK if all(not r["errors"] for r in records) else EXIT_BAD_INPUT
 
 

@@ -143,7 +143,7 @@ def test_per_case_changes_are_the_difference_of_the_two_analyses(analyses):
     assert len(cmp.cases) == len(set(old) | set(new))
     fields = {"spin rate": "spin_rate_rad_s", "tilt of the spin axis": "tilt_deg",
               "controllability distance": "controllability_distance", "H2 norm": "h2_norm",
-              "thrust-saturation rate": "saturation_probability_per_s"}
+              "thrust-saturation rate": "saturation_rate_per_s"}
     checked = 0
     for case in cmp.cases:
         assert case["status"] == "both"

@@ -536,7 +536,7 @@ def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: n
     ``W = (I + rho A A^T)^-1`` and ``f = -rho A^T W b``, which leaves a 2 x 2 system in ``d``
     per point. Returns the moved points, the thrusts and the merit.
     """
-    m, k = P.shape[0], prob.k
+    m = P.shape[0]
     nz = np.sqrt(np.maximum(1.0 - P[:, 1] ** 2 - P[:, 2] ** 2, 0.0))
     At = np.broadcast_to(A, (m,) + A.shape).copy()
     At[:, 3, :] *= nz[:, None]

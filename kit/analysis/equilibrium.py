@@ -511,12 +511,18 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
         # at fast spin the gyroscopic moment grows as w^2 sin(tilt): the equilibria lie in a
         # valley far narrower in tilt than the grid's rings, so each grid point is scored by
         # the best point of its cell (the axis moved by the linearised fit below)
-        B = prob.jacobian(np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1))[..., 1:3]
-        Pc, Fc, mc = _fit_axis(prob, A, P, r0.reshape(-1, 4), B)
-        better = np.isfinite(mc) & (mc < merit.reshape(-1))
-        G = np.where(better[:, None], Pc, P).reshape(G.shape)
-        F = np.where(better[:, None], Fc, F.reshape(-1, prob.k)).reshape(F.shape)
-        merit = np.where(better, mc, merit.reshape(-1)).reshape(merit.shape)
+        B = prob.jacobian(V)[..., 1:3].reshape(shape + (4, 2))
+        G = G.copy()
+        for j in range(shape[1]):
+            Pj = G[:, j].reshape(-1, 3)
+            Pc, Fc, mc = _fit_axis(prob, A, Pj, r0[:, j].reshape(-1, 4),
+                                   B[:, j].reshape(-1, 4, 2))
+            mj = merit[:, j].reshape(-1)
+            better = np.isfinite(mc) & (mc < mj)
+            G[:, j] = np.where(better[:, None], Pc, Pj).reshape(G.shape[0], -1, 3)
+            Fj = np.where(better[:, None], Fc, F[:, j].reshape(-1, prob.k))
+            F[:, j] = Fj.reshape(shape[0], shape[2], prob.k)
+            merit[:, j] = np.where(better, mc, mj).reshape(shape[0], shape[2])
     return G, F, merit
 
 
@@ -527,8 +533,9 @@ _AXIS_CELL = 0.07
 
 def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: np.ndarray,
               rho: float = _RHO) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Thrusts and a move ``d`` of the spin axis fitted at points ``P``, with the residual
-    linear in both: ``r ~ r0 + A(n_z) f + B d`` (``B = dr/d(n_x, n_y)`` at ``f = 0``).
+    """Thrusts and a move ``d`` of the spin axis fitted at points ``P`` of one tilt ring, with
+    the residual linear in both: ``r ~ r0 + A(n_z) f + B d`` (``B = dr/d(n_x, n_y)`` at
+    ``f = 0``; ``n_z`` of the ring's first point).
 
     The ridge fit ``min |f|^2 + 1e-3 |d / c|^2 + rho |r|^2`` with ``|d| <= c``
     (:data:`_AXIS_CELL`, the move clipped; merit as in :func:`_fit`). The thrusts are
@@ -536,11 +543,9 @@ def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: n
     ``W = (I + rho A A^T)^-1`` and ``f = -rho A^T W b``, which leaves a 2 x 2 system in ``d``
     per point. Returns the moved points, the thrusts and the merit.
     """
-    m = P.shape[0]
-    nz = np.sqrt(np.maximum(1.0 - P[:, 1] ** 2 - P[:, 2] ** 2, 0.0))
-    At = np.broadcast_to(A, (m,) + A.shape).copy()
-    At[:, 3, :] *= nz[:, None]
-    W = np.linalg.inv(np.eye(4) + rho * np.einsum("mik,mjk->mij", At, At))
+    At = A.copy()
+    At[3] *= math.sqrt(max(1.0 - P[0, 1] ** 2 - P[0, 2] ** 2, 0.0))
+    W = np.linalg.inv(np.eye(4) + rho * At @ At.T)
     ok = np.all(np.isfinite(B), axis=(1, 2)) & np.all(np.isfinite(r0), axis=1)
     B = np.where(ok[:, None, None], B, 0.0)
     r0 = np.where(ok[:, None], r0, 0.0)
@@ -553,9 +558,9 @@ def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: n
     Pn[:, 1:] = np.clip(P[:, 1:] + d, -smax, smax)
     d = Pn[:, 1:] - P[:, 1:]
     b = r0 + np.einsum("mij,mj->mi", B, d)
-    F = -rho * np.einsum("mik,mi->mk", At, np.einsum("mij,mj->mi", W, b))
+    F = -rho * (b @ W.T) @ At
     Fc = np.clip(F, prob.lo, prob.fmax)
-    res = b + np.einsum("mik,mk->mi", At, Fc)
+    res = b + Fc @ At.T
     merit = np.sum(Fc**2, axis=1) + rho * (np.sum(res**2, axis=1) + np.sum((F - Fc) ** 2, axis=1))
     merit[~ok] = np.inf
     return Pn, Fc, merit

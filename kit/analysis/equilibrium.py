@@ -19,7 +19,9 @@ directions. The operating point of a case is a function of the design alone:
    programme, solved exactly by a semismooth Newton method on its four dual variables. The
    spinning members: a fixed grid over spin rate (both senses, log-spaced to
    :data:`MAX_SPIN_RAD_S`) and spin-axis direction (tilts to :data:`MAX_TILT_RAD`) is scored
-   with the thrusts entering linearly (a ridge least-squares fit per grid point); the best
+   with the thrusts entering linearly (a ridge least-squares fit per grid point, the spin axis
+   also moved within its cell by the same fit linearised in the axis, since at fast spin the
+   equilibria lie in a valley far narrower in tilt than the grid's rings); the best
    separated grid points of each sense start a Newton method on the optimality (KKT)
    conditions of ``min objective(f)`` subject to the residual, with the generated Jacobians, a
    finite-difference Hessian of the constraints and an active set for the thrust limits.

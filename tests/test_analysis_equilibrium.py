@@ -338,3 +338,53 @@ def test_random_designs_operating_point_properties(mass, com_x, com_y, ixy, n_ro
             assert eq.thrust_n @ eq.thrust_n <= c.effort_n2 * (1 + 1e-9)
         again = E.solve(veh, failed, rule="least-effort")
         np.testing.assert_array_equal(again.thrust_n, eq.thrust_n)
+
+
+def _legacy_search():
+    import sys
+
+    bench = str(Path(__file__).resolve().parent / "bench")
+    if bench not in sys.path:
+        sys.path.insert(0, bench)
+    import legacy_operating_point
+
+    return legacy_operating_point
+
+
+@pytest.mark.parametrize("yaw_drag", [2e-4, 7e-4, 2e-3])
+@pytest.mark.parametrize("max_thrust_n", [2.0, 3.0, 4.0])
+def test_search_finds_what_the_multistart_slsqp_search_finds(yaw_drag, max_thrust_n):
+    # Check value: the earlier multi-start SLSQP least-effort search
+    # (tests/bench/legacy_operating_point.py, scipy.optimize.minimize). Whenever it finds an
+    # equilibrium within the limits, the structured search finds one of no greater effort.
+    # Small yaw drag puts the least-effort equilibrium at a fast spin (~98 rad/s for 2e-4)
+    # with the axis tilted ~0.6 deg, between the start grid's tilt rings.
+    legacy = _legacy_search()
+    veh = Vehicle.from_design(ring_design(drag=(0.0007, 0.0007, yaw_drag),
+                                          max_thrust_n=max_thrust_n))
+    compared = 0
+    for failed in (("r0",), ("r1",)):
+        old = legacy.solve(veh, failed)
+        if not (old.found and old.residual <= E.RESIDUAL_TOL
+                and np.all(old.thrust_n >= -1e-12)
+                and np.all(old.thrust_n <= old.max_thrust_n * (1 + 1e-9))):
+            continue
+        compared += 1
+        new = E.solve(veh, failed, rule="least-effort")
+        _invariants(veh, new)
+        old_effort = float(old.thrust_n @ old.thrust_n)
+        assert float(new.thrust_n @ new.thrust_n) <= old_effort * (1 + 1e-6), failed
+        assert min(c.effort_n2 for c in new.candidates) <= old_effort * (1 + 1e-6)
+    assert compared == 2  # the reference finds both cases of every variant here
+
+
+def test_bad_quad_fast_spin_equilibrium_is_found():
+    # Check value: the multi-start SLSQP search (tests/bench/legacy_operating_point.py) finds
+    # spin +98.28 rad/s, tilt 0.58 deg, thrusts (0, 1.635, 1.633, 1.635) N for this design.
+    veh = Vehicle.from_design(ring_design(drag=(0.0007, 0.0007, 0.0002), max_thrust_n=2.0,
+                                          name="bad quad"))
+    eq = E.solve(veh, ("r0",))
+    _invariants(veh, eq)
+    assert eq.spin_rate_rad_s == pytest.approx(98.278, rel=1e-4)
+    assert eq.tilt_deg == pytest.approx(0.581, abs=1e-3)
+    np.testing.assert_allclose(eq.thrust_n, [0.0, 1.63537, 1.63285, 1.63537], atol=1e-5)

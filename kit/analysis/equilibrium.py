@@ -19,7 +19,9 @@ directions. The operating point of a case is a function of the design alone:
    programme, solved exactly by a semismooth Newton method on its four dual variables. The
    spinning members: a fixed grid over spin rate (both senses, log-spaced to
    :data:`MAX_SPIN_RAD_S`) and spin-axis direction (tilts to :data:`MAX_TILT_RAD`) is scored
-   with the thrusts entering linearly (a ridge least-squares fit per grid point); the best
+   with the thrusts entering linearly (a ridge least-squares fit per grid point, the spin axis
+   also moved within its cell by the same fit linearised in the axis, since at fast spin the
+   equilibria lie in a valley far narrower in tilt than the grid's rings); the best
    separated grid points of each sense start a Newton method on the optimality (KKT)
    conditions of ``min objective(f)`` subject to the residual, with the generated Jacobians, a
    finite-difference Hessian of the constraints and an active set for the thrust limits.
@@ -507,7 +509,63 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
                       same_tilt=True)
         F[:, j] = Fj.reshape(shape[0], shape[2], prob.k)
         merit[:, j] = mj.reshape(shape[0], shape[2])
+    if ratio is None:
+        # at fast spin the gyroscopic moment grows as w^2 sin(tilt): the equilibria lie in a
+        # valley far narrower in tilt than the grid's rings, so each grid point is scored by
+        # the best point of its cell (the axis moved by the linearised fit below)
+        B = prob.jacobian(V)[..., 1:3].reshape(shape + (4, 2))
+        G = G.copy()
+        for j in range(shape[1]):
+            Pj = G[:, j].reshape(-1, 3)
+            Pc, Fc, mc = _fit_axis(prob, A, Pj, r0[:, j].reshape(-1, 4),
+                                   B[:, j].reshape(-1, 4, 2))
+            mj = merit[:, j].reshape(-1)
+            better = np.isfinite(mc) & (mc < mj)
+            G[:, j] = np.where(better[:, None], Pc, Pj).reshape(G.shape[0], -1, 3)
+            Fj = np.where(better[:, None], Fc, F[:, j].reshape(-1, prob.k))
+            F[:, j] = Fj.reshape(shape[0], shape[2], prob.k)
+            merit[:, j] = np.where(better, mc, mj).reshape(shape[0], shape[2])
     return G, F, merit
+
+
+#: Largest move of the spin axis (in n_x and n_y) of :func:`_fit_axis`: half the spacing of
+#: the grid's first tilt rings.
+_AXIS_CELL = 0.07
+
+
+def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: np.ndarray,
+              rho: float = _RHO) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Thrusts and a move ``d`` of the spin axis fitted at points ``P`` of one tilt ring, with
+    the residual linear in both: ``r ~ r0 + A(n_z) f + B d`` (``B = dr/d(n_x, n_y)`` at
+    ``f = 0``; ``n_z`` of the ring's first point).
+
+    The ridge fit ``min |f|^2 + 1e-3 |d / c|^2 + rho |r|^2`` with ``|d| <= c``
+    (:data:`_AXIS_CELL`, the move clipped; merit as in :func:`_fit`). The thrusts are
+    eliminated in closed form, ``min_f |f|^2 + rho |A f + b|^2 = rho b^T W b`` with
+    ``W = (I + rho A A^T)^-1`` and ``f = -rho A^T W b``, which leaves a 2 x 2 system in ``d``
+    per point. Returns the moved points, the thrusts and the merit.
+    """
+    At = A.copy()
+    At[3] *= math.sqrt(max(1.0 - P[0, 1] ** 2 - P[0, 2] ** 2, 0.0))
+    W = np.linalg.inv(np.eye(4) + rho * At @ At.T)
+    ok = np.all(np.isfinite(B), axis=(1, 2)) & np.all(np.isfinite(r0), axis=1)
+    B = np.where(ok[:, None, None], B, 0.0)
+    r0 = np.where(ok[:, None], r0, 0.0)
+    WB = W @ B
+    lhs = rho * np.einsum("mia,mib->mab", B, WB) + (1e-3 / _AXIS_CELL**2) * np.eye(2)
+    rhs = -rho * np.einsum("mia,mi->ma", WB, r0)
+    d = np.clip(np.linalg.solve(lhs, rhs[..., None])[..., 0], -_AXIS_CELL, _AXIS_CELL)
+    smax = math.sin(MAX_TILT_RAD)
+    Pn = P.copy()
+    Pn[:, 1:] = np.clip(P[:, 1:] + d, -smax, smax)
+    d = Pn[:, 1:] - P[:, 1:]
+    b = r0 + np.einsum("mij,mj->mi", B, d)
+    F = -rho * (b @ W.T) @ At
+    Fc = np.clip(F, prob.lo, prob.fmax)
+    res = b + Fc @ At.T
+    merit = np.sum(Fc**2, axis=1) + rho * (np.sum(res**2, axis=1) + np.sum((F - Fc) ** 2, axis=1))
+    merit[~ok] = np.inf
+    return Pn, Fc, merit
 
 
 def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | None):

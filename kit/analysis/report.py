@@ -49,6 +49,13 @@ CASE_TIME_LIMIT_S = 20.0
 #: Longest time the wheel study of a design may take, in s (it solves every case at 21 wheel
 #: momenta).
 WHEEL_TIME_LIMIT_S = 120.0
+#: Longest time the flown recovery of one failure case may take, in s, and all flown recoveries
+#: of one design together (a demo case flies in 2-12 s; common practice, no source). A case past
+#: either limit is "not simulated" with the reason and fails the check "recovery simulated".
+SIM_TIME_LIMIT_S = 60.0
+SIM_BUDGET_S = 120.0
+#: Longest time of the Monte-Carlo gust comparison, in s.
+GUST_TIME_LIMIT_S = 30.0
 #: Numerical failures that make a case a result with a reason instead of an exception.
 NUMERICAL_ERRORS = (np.linalg.LinAlgError, ValueError, ArithmeticError, RecursionError,
                     AnalysisError)
@@ -187,7 +194,8 @@ def unsolved(veh: Vehicle, failed=(), thrust_ratio=None, reason: str = "") -> Eq
 
 def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
                  simulate: bool = False,
-                 time_limit_s: float = CASE_TIME_LIMIT_S) -> CaseResult:
+                 time_limit_s: float = CASE_TIME_LIMIT_S,
+                 sim_time_limit_s: float = SIM_TIME_LIMIT_S) -> CaseResult:
     """Equilibrium, linear control, saturation risk, gains and checks for one failure case.
 
     A case whose solve fails numerically or runs past ``time_limit_s`` (s) is a result without
@@ -208,6 +216,8 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
         (:func:`kit.analysis.simulate.simulate_failure`) and add its checks.
     time_limit_s : float
         Time box of the equilibrium, control and risk of this case, in s.
+    sim_time_limit_s : float
+        Time box of the flown recovery, in s; 0 or less: not simulated (time budget spent).
     """
     c = veh.design.control
     fmin = [r.min_thrust_n for r in veh.design.rotors]
@@ -228,9 +238,15 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
     sim, note = None, ""
     if simulate and failed:
         try:
-            sim = simulate_failure(veh, failed, thrust_ratio=thrust_ratio)
-        except (EquilibriumNotFound, ValueError) as exc:
-            note = f"not simulated: {exc}"
+            if sim_time_limit_s <= 0:
+                raise AnalysisError("the analysis's time budget for flown recoveries "
+                                    f"({SIM_BUDGET_S:g} s) was spent on earlier cases")
+            with time_box(sim_time_limit_s, "flown recovery"):
+                sim = simulate_failure(veh, failed, thrust_ratio=thrust_ratio)
+        except (EquilibriumNotFound, *NUMERICAL_ERRORS) as exc:
+            sim = None
+            why = exc if isinstance(exc, EquilibriumNotFound) else _reason(exc)
+            note = f"not simulated: {why}"
             checks.append(checks_mod.is_true("recovery simulated", False, eq.label))
         if sim is not None:
             checks += checks_mod.transient_checks(sim, veh.design.review, eq.label)
@@ -531,8 +547,13 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
                           path=design.source or None) from None
     todo = all_cases(veh)
     results = []
+    sim_left = SIM_BUDGET_S
     for i, (f, r) in enumerate(todo):
-        results.append(analyse_case(veh, f, r, simulate=simulate))
+        start = time.monotonic()
+        results.append(analyse_case(veh, f, r, simulate=simulate,
+                                    sim_time_limit_s=min(SIM_TIME_LIMIT_S, sim_left)))
+        if simulate and f:
+            sim_left -= time.monotonic() - start
         if progress is not None:
             progress(i + 1, len(todo))
     cases = tuple(results)
@@ -559,7 +580,11 @@ def analyze(design: Design, wheel: bool = True, executor=None, progress=None,
         checks += lc.checks
     gust = None
     if gusts and cases and cases[0].eq.found and cases[0].ctl.K is not None:
-        gust = gust_monte_carlo(veh, cases[0].eq, cases[0].ctl)
+        try:
+            with time_box(GUST_TIME_LIMIT_S, "gust Monte-Carlo"):
+                gust = gust_monte_carlo(veh, cases[0].eq, cases[0].ctl)
+        except NUMERICAL_ERRORS:
+            gust = None
     return DesignReport(design, veh, hover, cases, spin, study, tuple(checks), extra, gust)
 
 

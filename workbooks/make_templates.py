@@ -376,7 +376,7 @@ NOTEBOOKS = {
 
 def build(name: str) -> nbformat.NotebookNode:
     nb = new_notebook(cells=NOTEBOOKS[name]())
-    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3",
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3 (ipykernel)",
                                  "language": "python"}
     nb.metadata["language_info"] = {"name": "python"}
     for i, cell in enumerate(nb.cells):

@@ -388,16 +388,17 @@ class FailurePanel(Panel):
         if eq.found:
             rows = [
                 ("free directions", str(eq.free_directions)),
-                ("spin rate about world up", f"{plots.fmt(eq.spin_rate_rad_s, 3, 'rad/s')} "
+                ("spin rate about n", f"{plots.fmt(eq.spin_rate_rad_s, 3, 'rad/s')} "
                  f"({plots.fmt(eq.spin_rate_rad_s / (2 * math.pi), 3, 'Hz')})"),
                 ("tilt of the spin axis from body z", plots.fmt(eq.tilt_deg, 3, "deg")),
                 ("radius of the CoM circle", plots.fmt(eq.circle_radius_m, 3, "m")),
                 ("busiest rotor", plots.fmt(float(np.nanmax(eq.thrust_fraction)) * 100, 3, "%")
                  + " of its max thrust"),
                 ("controllable (reduced model)", plots.fmt(ctl.controllable)),
-                ("distance to uncontrollability", plots.fmt(ctl.controllability_distance, 3)),
-                ("H2 norm, torque to n_x, n_y", plots.fmt(ctl.h2_norm, 3)),
-                ("saturation probability", plots.fmt(risk.probability_per_s, 2, "per s")
+                ("controllability distance", plots.fmt(ctl.controllability_distance, 3)),
+                ("H2 norm, torque to n_x, n_y", plots.fmt(ctl.h2_norm, 3,
+                                                           "rad per N m per sqrt(Hz)")),
+                ("thrust-saturation rate", plots.fmt(risk.crossing_rate_per_s, 2, "1/s")
                  if risk is not None else "\u2013 (no stabilising loop)"),
             ]
         else:

@@ -23,11 +23,11 @@ from kit.panels.progress import WidgetProgress
 
 #: Quantities that can be mapped: label -> CaseMap field.
 QUANTITIES = {
-    "saturation probability (per s)": "saturation_probability",
-    "distance to uncontrollability (1)": "controllability_distance",
+    "probability of thrust saturation within 1 s (1)": "saturation_probability",
+    "controllability distance (1)": "controllability_distance",
     "spin rate (rad/s)": "spin_rate_rad_s",
     "tilt of the spin axis (deg)": "tilt_deg",
-    "H2 norm": "h2_norm",
+    "H2 norm (rad per N m per sqrt(Hz))": "h2_norm",
     "busiest rotor, fraction of max thrust (1)": "max_thrust_fraction",
 }
 #: Threshold contour per mapped field: (label, function of the design's review rules -> value).

@@ -33,8 +33,9 @@ G.-X. Du, Q. Quan, B. Yang, K.-Y. Cai, "Controllability analysis for multirotor 
 rotor degradation and failure", J. Guidance, Control, and Dynamics 38(5), 2015, sec. III
 (available control authority index; from memory). G.-X. Du, Q. Quan, K.-Y. Cai,
 "Controllability analysis and degraded control for a class of hexacopters subject to rotor
-failures", J. Intelligent & Robotic Systems, 2015 (from memory). G. M. Ziegler, Lectures on
-Polytopes, Springer 1995, sec. 7.3 (zonotopes and their facets; from memory).
+failures", J. Intelligent & Robotic Systems, 2015 (from memory). G. M. Ziegler's polytope
+textbook, Springer Graduate Texts in Mathematics 152, 1995, sec. 7.3 (zonotopes and their
+facets; from memory).
 """
 
 from __future__ import annotations

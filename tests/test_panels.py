@@ -1,5 +1,6 @@
 """Panels, headless: set a control's value, the figure data and readouts follow kit.analysis."""
 
+import html
 import subprocess
 import sys
 from concurrent.futures import ThreadPoolExecutor
@@ -99,6 +100,9 @@ def test_failure_panel_follows_analyse_case(survey):
     np.testing.assert_allclose(sorted(p.sources["poles"]["closed"].data["re"]),
                                sorted(c.ctl.closed_loop_poles.real), rtol=1e-4)
     assert plots.fmt(c.eq.spin_rate_rad_s, 3, "rad/s") in p.readout_html
+    # the static-hover authority of this failure set and the rule's reason (kit.analysis)
+    assert plots.fmt(c.eq.authority.index, 3) in p.readout_html
+    assert html.escape(c.eq.chosen_by) in p.readout_html
     # the circle is drawn in mm
     assert p.sources["circle"]["path"].data["x"][0] == pytest.approx(
         1e3 * c.eq.circle_radius_m, rel=1e-5)

@@ -388,6 +388,11 @@ class FailurePanel(Panel):
         if eq.found:
             rows = [
                 ("free directions", str(eq.free_directions)),
+                ("static-hover control authority index",
+                 "\u2013" if eq.authority is None else
+                 f"{plots.fmt(eq.authority.index, 3)} "
+                 f"({'static hover exists' if eq.authority.static_hover else 'no static hover'})"),
+                ("operating point chosen by", eq.chosen_by or "\u2013"),
                 ("spin rate about n", f"{plots.fmt(eq.spin_rate_rad_s, 3, 'rad/s')} "
                  f"({plots.fmt(eq.spin_rate_rad_s / (2 * math.pi), 3, 'Hz')})"),
                 ("tilt of the spin axis from body z", plots.fmt(eq.tilt_deg, 3, "deg")),

@@ -129,3 +129,19 @@ def test_bad_stand_file_in_a_design_is_a_design_error(tmp_path):
 def test_demo_stand_file_says_it_is_invented():
     head = (DESIGNS / "heavy_hex_stand.csv").read_text(encoding="utf-8").splitlines()[0]
     assert head.startswith("#") and "invented" in head.lower()
+
+
+def test_record_header_names_the_stand_file_and_its_sha256(tmp_path):
+    """The record of a design with fitted rotor data carries the stand file's SHA-256."""
+    import hashlib
+    from pathlib import Path
+
+    from kit import cli
+
+    root = Path(__file__).resolve().parents[1] / "data" / "designs"
+    out = tmp_path / "rec"
+    assert cli.main(["record", str(root / "heavy_hex.toml"), "--workbooks", "hover",
+                     "--out", str(out)]) == 0
+    digest = hashlib.sha256((root / "heavy_hex_stand.csv").read_bytes()).hexdigest()
+    page = (out / "hover.html").read_text(encoding="utf-8")
+    assert f"Rotor data heavy_hex_stand.csv SHA-256</th><td class=\"rb-mono\">{digest}<" in page

@@ -373,6 +373,9 @@ def render_record(nb, *, design, workbook: str, date: str, failure: _ex.CellFail
             "file": Path(design.source).name if design.source else "",
             "prepared_by": design.prepared_by or "", "checked_by": design.checked_by or "",
             "notes": getattr(design, "notes", "") or "",
+            # measured rotor data the coefficients were fitted from (file name, SHA-256)
+            "stand_files": sorted({(f.file, f.sha256)
+                                   for f in getattr(design, "rotor_fits", ())}),
         },
         # built by kit.workbook from this run's outputs, every string escaped there
         "verdict_html": verdict_html(rows) if failure is None else "",

@@ -525,12 +525,33 @@ def _key(k: str) -> str:
 
 
 def _toml_str(s: str) -> str:
-    out = s.replace("\\", "\\\\").replace('"', '\\"')
-    out = "".join(ch if ch >= " " or ch == "\t" else f"\\u{ord(ch):04x}" for ch in out)
-    return f'"{out}"'
+    """A TOML basic string: quotes, backslashes, control characters (U+007F too) escaped, a lone
+    surrogate (not encodable) as U+FFFD."""
+    out = ['"']
+    for c in s:
+        o = ord(c)
+        if c == '"':
+            out.append('\\"')
+        elif c == "\\":
+            out.append("\\\\")
+        elif (o < 0x20 and c != "\t") or o == 0x7F:
+            out.append(f"\\u{o:04x}")
+        elif 0xD800 <= o <= 0xDFFF:
+            out.append("\\ufffd")
+        else:
+            out.append(c)
+    out.append('"')
+    return "".join(out)
 
 
-def _value(v: Any) -> str:
+def toml_value(v: Any) -> str:
+    """One TOML value, inline (tables as inline tables; NaN and infinities as TOML spells them).
+
+    Parameters
+    ----------
+    v : object
+        A plain value (bool, int, float, str, list, dict); anything else is written as text.
+    """
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, int):
@@ -544,9 +565,9 @@ def _value(v: Any) -> str:
     if isinstance(v, str):
         return _toml_str(v)
     if isinstance(v, list):
-        return "[" + ", ".join(_value(x) for x in v) + "]"
+        return "[" + ", ".join(toml_value(x) for x in v) + "]"
     if isinstance(v, dict):
-        return "{ " + ", ".join(f"{_key(str(k))} = {_value(x)}" for k, x in v.items()) + " }"
+        return "{ " + ", ".join(f"{_key(str(k))} = {toml_value(x)}" for k, x in v.items()) + " }"
     return _toml_str(str(v))
 
 
@@ -562,16 +583,17 @@ def to_toml(doc: dict) -> str:
     scalars = {k: v for k, v in doc.items() if not isinstance(v, dict)
                and not (isinstance(v, list) and v and all(isinstance(t, dict) for t in v))}
     for k, v in scalars.items():
-        lines.append(f"{_key(k)} = {_value(v)}")
+        lines.append(f"{_key(k)} = {toml_value(v)}")
     for k, v in doc.items():
         if k in scalars:
             continue
         if isinstance(v, dict):
-            lines += ["", f"[{_key(k)}]"] + [f"{_key(str(a))} = {_value(b)}" for a, b in v.items()]
+            lines += ["", f"[{_key(k)}]"]
+            lines += [f"{_key(str(a))} = {toml_value(b)}" for a, b in v.items()]
         else:
             for t in v:
                 lines += ["", f"[[{_key(k)}]]"]
-                lines += [f"{_key(str(a))} = {_value(b)}" for a, b in t.items()]
+                lines += [f"{_key(str(a))} = {toml_value(b)}" for a, b in t.items()]
     return "\n".join(lines).lstrip("\n") + "\n"
 
 

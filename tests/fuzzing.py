@@ -30,6 +30,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from kit.design_expand import _toml_str, toml_value
+
 ROOT = Path(__file__).resolve().parents[1]
 DEMO_DESIGNS = sorted((ROOT / "data" / "designs").glob("*.toml"))
 
@@ -175,46 +177,6 @@ def mutated(ch: Chooser, docs: Sequence[dict] | None = None, max_ops: int = 3) -
 
 
 # -- TOML text ------------------------------------------------------------------------------------
-
-
-def _toml_str(s: str) -> str:
-    out = ['"']
-    for c in s:
-        o = ord(c)
-        if c == '"':
-            out.append('\\"')
-        elif c == "\\":
-            out.append("\\\\")
-        elif o < 0x20 or o == 0x7F:
-            out.append(f"\\u{o:04x}")
-        elif 0xD800 <= o <= 0xDFFF:
-            out.append("\\ufffd")
-        else:
-            out.append(c)
-    out.append('"')
-    return "".join(out)
-
-
-def toml_value(v: Any) -> str:
-    """One TOML value, inline (tables as inline tables)."""
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        if math.isnan(v):
-            return "nan"
-        if math.isinf(v):
-            return "inf" if v > 0 else "-inf"
-        return repr(v)
-    if isinstance(v, str):
-        return _toml_str(v)
-    if isinstance(v, list):
-        return "[" + ", ".join(toml_value(x) for x in v) + "]"
-    if isinstance(v, dict):
-        return "{" + ", ".join(f"{_toml_str(str(k))} = {toml_value(x)}"
-                               for k, x in v.items()) + "}"
-    return _toml_str(str(v))  # dates and the like: as text
 
 
 def to_toml(doc: dict) -> str:

@@ -398,7 +398,19 @@ def lag_closed_loop(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray
     Kf = np.zeros((k, k)) if Kf is None else Kf
     if tau_s <= 0:
         return A - B @ np.linalg.solve(np.eye(k) + Kf, Kx)
-    return np.block([[A, B], [-Kx / tau_s, -(np.eye(k) + Kf) / tau_s]])
+    return _lag_closed_loops(A, B, Kx, Kf, np.array([tau_s], float))[0]
+
+
+def _lag_closed_loops(A, B, Kx, Kf, taus) -> np.ndarray:
+    """:func:`lag_closed_loop` at every ``tau > 0`` of ``taus``, stacked (the same entries)."""
+    n, k = B.shape
+    t = taus[:, None, None]
+    M = np.empty((taus.size, n + k, n + k))
+    M[:, :n, :n] = A
+    M[:, :n, n:] = B
+    M[:, n:, :n] = -Kx / t
+    M[:, n:, n:] = -(np.eye(k) + Kf) / t
+    return M
 
 
 def lag_margin(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray | None = None,
@@ -426,22 +438,40 @@ def lag_margin(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray | No
     if growth(0.0) >= 0:
         return 0.0
     grid = np.r_[0.0, np.geomspace(1e-5, tau_max_s, 80)]
-    prev = 0.0
-    for tau in grid[1:]:
-        if growth(tau) >= 0:
-            return float(brentq(growth, prev, tau, rtol=rtol, xtol=1e-12))
-        prev = tau
+    # the scan's closed loops in one batched eigenvalue call (LAPACK per matrix, as one by one)
+    k = B.shape[1]
+    Kf0 = np.zeros((k, k)) if Kf is None else Kf
+    growths = np.max(np.linalg.eigvals(_lag_closed_loops(A, B, Kx, Kf0, grid[1:])).real,
+                     axis=1)
+    unstable = np.flatnonzero(growths >= 0)
+    if unstable.size:
+        j = int(unstable[0]) + 1
+        return float(brentq(growth, grid[j - 1], grid[j], rtol=rtol, xtol=1e-12))
     return math.inf
 
 
 def _freq_response(A, B, C, w):
     """``C (j w I - A)^-1 B`` for scalar input and output, at the frequencies ``w`` (rad/s)."""
+    return _freq_response_fn(A, B, C)(w)
+
+
+def _freq_response_fn(A, B, C):
+    """:func:`_freq_response` of one system as a function of ``w``: the modal decomposition
+    (or the fallback's matrices) computed once, for the many evaluations of a root search."""
     lam, V = np.linalg.eig(A)
     if np.linalg.cond(V) < 1e8:
         cb = (C @ V).ravel() * np.linalg.solve(V, B).ravel()
-        return (cb[None, :] / (1j * w[:, None] - lam[None, :])).sum(axis=1)
+
+        def modal(w):
+            return (cb[None, :] / (1j * w[:, None] - lam[None, :])).sum(axis=1)
+
+        return modal
     n = A.shape[0]
-    return np.array([(C @ np.linalg.solve(1j * x * np.eye(n) - A, B)).item() for x in w])
+
+    def direct(w):
+        return np.array([(C @ np.linalg.solve(1j * x * np.eye(n) - A, B)).item() for x in w])
+
+    return direct
 
 
 def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
@@ -476,8 +506,10 @@ def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
         Ai = A - B[:, others] @ K[others]
         Bi, Ci = B[:, [i]], K[[i]]
 
-        def L(x, Ai=Ai, Bi=Bi, Ci=Ci):
-            return _freq_response(Ai, Bi, Ci, np.atleast_1d(x))
+        resp = _freq_response_fn(Ai, Bi, Ci)
+
+        def L(x, resp=resp):
+            return resp(np.atleast_1d(x))
 
         Lw = L(w)
         mag = np.abs(Lw) - 1.0

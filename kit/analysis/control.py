@@ -272,17 +272,17 @@ def _pbh_minimum(A, B, starts, span) -> float:
     best = f.copy()
     h = 1e-6 * span
     for _ in range(12):
-        _, gx = f_grad(lam + h)
-        _, gy = f_grad(lam + 1j * h)
+        # both differences in one batched evaluation
+        _, gxy = f_grad(np.concatenate((lam + h, lam + 1j * h)))
+        gx, gy = gxy[:lam.size], gxy[lam.size:]
         Hs = np.stack([(gx - g) / h, (gy - g) / h], axis=2)
         Hs = 0.5 * (Hs + np.swapaxes(Hs, 1, 2))
         step = np.empty_like(g)
-        for m in range(lam.size):
-            ev = np.linalg.eigvalsh(Hs[m])
-            if ev[0] > 0:
-                step[m] = -np.linalg.solve(Hs[m], g[m])
-            else:  # not convex here: a gradient step of the span's size
-                step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
+        convex = np.linalg.eigvalsh(Hs)[:, 0] > 0
+        if np.any(convex):
+            step[convex] = -np.linalg.solve(Hs[convex], g[convex][..., None])[..., 0]
+        for m in np.flatnonzero(~convex):  # not convex here: a gradient step of the span's size
+            step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
         dl = step[:, 0] + 1j * step[:, 1]
         t = np.ones(lam.size)
         for _ in range(6):

@@ -468,8 +468,8 @@ def _fit(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray,
         At = np.broadcast_to(A, (P.shape[0],) + A.shape).copy()
         At[:, 3, :] *= nz[:, None]
         if ratio is None:
-            AtA = np.einsum("mik,mil->mkl", At, At)
-            rhs = -np.einsum("mik,mi->mk", At, r0)
+            AtA = _rows_outer(At, At)
+            rhs = -_rows_dot(At, r0)
             F = np.linalg.solve(rho * AtA + np.eye(prob.k), rho * rhs[..., None])[..., 0]
         else:
             a = At @ ratio
@@ -491,6 +491,23 @@ def _fit(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray,
     return Fc, merit
 
 
+def _rows_outer(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
+    """``sum_i X[m, i, a] Y[m, i, b]`` over the residual's four rows, summed in row order
+    (the same sums as ``einsum("mia,mib->mab")``, without its general loop)."""
+    out = X[:, 0, :, None] * Y[:, 0, None, :]
+    for i in range(1, X.shape[1]):
+        out = out + X[:, i, :, None] * Y[:, i, None, :]
+    return out
+
+
+def _rows_dot(X: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """``sum_i X[m, i, a] r[m, i]``, summed in row order (as ``einsum("mia,mi->ma")``)."""
+    out = X[:, 0, :] * r[:, 0, None]
+    for i in range(1, X.shape[1]):
+        out = out + X[:, i, :] * r[:, i, None]
+    return out
+
+
 def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
     """Score the start grid (:func:`_grid`) with the thrusts entering linearly.
 
@@ -500,8 +517,8 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
     G = _grid(prob.w_s)
     shape = G.shape[:3]
     P = G.reshape(-1, 3)
-    V = np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1)
-    r0 = prob.residual(V).reshape(shape + (4,))
+    r0, B = _grid_at_rest(prob, P, ratio is None)
+    r0 = r0.reshape(shape + (4,))
     F = np.zeros(shape + (prob.k,))
     merit = np.zeros(shape)
     for j in range(shape[1]):
@@ -513,7 +530,7 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
         # at fast spin the gyroscopic moment grows as w^2 sin(tilt): the equilibria lie in a
         # valley far narrower in tilt than the grid's rings, so each grid point is scored by
         # the best point of its cell (the axis moved by the linearised fit below)
-        B = prob.jacobian(V)[..., 1:3].reshape(shape + (4, 2))
+        B = B.reshape(shape + (4, 2))
         G = G.copy()
         for j in range(shape[1]):
             Pj = G[:, j].reshape(-1, 3)
@@ -526,6 +543,25 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
             F[:, j] = Fj.reshape(shape[0], shape[2], prob.k)
             merit[:, j] = np.where(better, mc, mj).reshape(shape[0], shape[2])
     return G, F, merit
+
+
+def _grid_at_rest(prob: _Problem, P: np.ndarray, with_axis: bool):
+    """The scaled residual at the grid points ``P`` with every thrust 0, and (``with_axis``) its
+    derivative in ``(n_x, n_y)`` there: functions of the vehicle alone (no thrust enters), so
+    computed once per vehicle and shared by its cases."""
+    cache = prob.veh._cache
+    key = ("grid_at_rest", prob.w_s)
+    r0, B = cache.get(key, (None, None))
+    if r0 is None or (with_axis and B is None):
+        V = np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1)
+        if r0 is None:
+            r0 = prob.residual(V)
+            r0.setflags(write=False)
+        if with_axis:
+            B = prob.jacobian(V)[..., 1:3]
+            B.setflags(write=False)
+        cache[key] = (r0, B)
+    return r0, B
 
 
 #: Largest move of the spin axis (in n_x and n_y) of :func:`_fit_axis`: half the spacing of
@@ -552,14 +588,14 @@ def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: n
     B = np.where(ok[:, None, None], B, 0.0)
     r0 = np.where(ok[:, None], r0, 0.0)
     WB = W @ B
-    lhs = rho * np.einsum("mia,mib->mab", B, WB) + (1e-3 / _AXIS_CELL**2) * np.eye(2)
-    rhs = -rho * np.einsum("mia,mi->ma", WB, r0)
+    lhs = rho * _rows_outer(B, WB) + (1e-3 / _AXIS_CELL**2) * np.eye(2)
+    rhs = -rho * _rows_dot(WB, r0)
     d = np.clip(np.linalg.solve(lhs, rhs[..., None])[..., 0], -_AXIS_CELL, _AXIS_CELL)
     smax = math.sin(MAX_TILT_RAD)
     Pn = P.copy()
     Pn[:, 1:] = np.clip(P[:, 1:] + d, -smax, smax)
     d = Pn[:, 1:] - P[:, 1:]
-    b = r0 + np.einsum("mij,mj->mi", B, d)
+    b = r0 + (B[:, :, 0] * d[:, 0, None] + B[:, :, 1] * d[:, 1, None])
     F = -rho * (b @ W.T) @ At
     Fc = np.clip(F, prob.lo, prob.fmax)
     res = b + Fc @ At.T
@@ -636,6 +672,11 @@ def _pick_starts(G: np.ndarray, merit: np.ndarray, per_sense: int) -> list[tuple
     return out
 
 
+_FREE_LO = np.full(3, -np.inf)
+_FREE_HI = np.full(3, np.inf)
+_ZERO3 = np.zeros(3)
+
+
 def _constraint_hessian(prob: _Problem, v: np.ndarray, J: np.ndarray, lam: np.ndarray):
     """``sum_j lam_j d^2 r_j / dv^2`` by forward differences of the generated Jacobian.
 
@@ -672,8 +713,8 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
     None.
     """
     n = v0.size
-    lo = np.r_[-np.inf, -np.inf, -np.inf, prob.lo]
-    hi = np.r_[np.inf, np.inf, np.inf, prob.fmax]
+    lo = np.concatenate((_FREE_LO, prob.lo))
+    hi = np.concatenate((_FREE_HI, prob.fmax))
     v = np.clip(v0, lo, hi)
     fixed = np.zeros(n, bool)
     nu = 1.0
@@ -683,7 +724,7 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         return obj.value(x[3:])
 
     def grad(x):
-        return np.r_[0.0, 0.0, 0.0, obj.grad(x[3:])]
+        return np.concatenate((_ZERO3, obj.grad(x[3:])))
 
     released = 0
     stationary, since = None, 0  # the last stationary point before a limit was released
@@ -699,8 +740,8 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
             lam = np.linalg.lstsq(JF.T, g[free], rcond=None)[0]
         H = -_constraint_hessian(prob, v, J, lam)
         H[3:, 3:] += np.diag(obj.hess_diag(v[3:]))
-        HF = H[np.ix_(free, free)]
         nF = int(free.sum())
+        HF = H if nF == n else H[np.ix_(free, free)]
         # convexify on the null space of the constraint Jacobian
         _, s, Vt = np.linalg.svd(JF)
         rank = int(np.sum(s > 1e-10 * max(s[0], 1e-300)))
@@ -709,8 +750,11 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
             ev = np.linalg.eigvalsh(Z.T @ HF @ Z)
             if ev[0] < 1e-8:
                 HF = HF + (1e-8 - ev[0] + 1e-6) * np.eye(nF)
-        K = np.block([[HF, JF.T], [JF, np.zeros((4, 4))]])
-        rhs = np.r_[-g[free], -c]
+        K = np.zeros((nF + 4, nF + 4))
+        K[:nF, :nF] = HF
+        K[:nF, nF:] = JF.T
+        K[nF:, :nF] = JF
+        rhs = np.concatenate((-g[free], -c))
         try:
             sol = np.linalg.solve(K, rhs)
         except np.linalg.LinAlgError:
@@ -748,9 +792,10 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         d /= cap
         # largest step within the limits
         amax, block = 1.0, -1
-        for i in np.flatnonzero(free & (d != 0)):
-            bound = hi[i] if d[i] > 0 else lo[i]
-            a = (bound - v[i]) / d[i]
+        moving = np.flatnonzero(free & (d != 0))
+        dm = d[moving]
+        reach = (np.where(dm > 0, hi[moving], lo[moving]) - v[moving]) / dm
+        for i, a in zip(moving[reach < 1.0], reach[reach < 1.0], strict=True):
             if a < amax:
                 amax, block = max(a, 0.0), int(i)
         nu = max(nu, 1.5 * float(np.max(np.abs(lam_new))))
@@ -830,19 +875,25 @@ def _polish_ratio(prob: _Problem, v: np.ndarray, ratio: np.ndarray) -> tuple[np.
         if not np.all(np.isfinite(Ju)):
             break
         du = np.linalg.lstsq(Ju, -r, rcond=None)[0]
-        step = 1.0
-        for _ in range(20):
-            un = u + step * du
-            vn = build(un)
-            if vn[1] ** 2 + vn[2] ** 2 < 0.999 and un[3] > 0:
-                rn = float(np.max(np.abs(prob.residual(vn))))
-                if rn < res:
-                    break
-            step *= 0.5
-        else:
+        # backtracking: the first of the steps 1, 1/2, .. 2^-19 that reduces the residual,
+        # every trial step evaluated in one batched call
+        UN = u + _HALVINGS[:, None] * du
+        VN = np.empty((UN.shape[0], 3 + ratio.size))
+        VN[:, :3] = UN[:, :3]
+        VN[:, 3:] = ratio * UN[:, 3:4]
+        ok = (VN[:, 1] ** 2 + VN[:, 2] ** 2 < 0.999) & (UN[:, 3] > 0)
+        if not np.any(ok):
+            break
+        rn = np.full(UN.shape[0], np.inf)
+        rn[ok] = np.max(np.abs(prob.residual(VN[ok])), axis=1)
+        better = np.flatnonzero(rn < res)
+        if not better.size:
             break  # no step reduces the residual: converged to rounding, or stuck
-        u = un
+        u = UN[better[0]]
     return best
+
+
+_HALVINGS = 0.5 ** np.arange(20)
 
 
 def _make(veh, failed, ratio, found, reason, z=None, residual=math.inf, **extra):

@@ -60,6 +60,7 @@ Systems & Control Letters 4 (1984) (from memory). Hautus, PBH test (from memory)
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass
 
@@ -438,16 +439,23 @@ def lag_margin(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray | No
     if growth(0.0) >= 0:
         return 0.0
     grid = np.r_[0.0, np.geomspace(1e-5, tau_max_s, 80)]
-    # the scan's closed loops in one batched eigenvalue call (LAPACK per matrix, as one by one)
+    # the scan's closed loops in batched eigenvalue calls (LAPACK per matrix, as one by one),
+    # a block of the grid at a time up to the first unstable point
     k = B.shape[1]
     Kf0 = np.zeros((k, k)) if Kf is None else Kf
-    growths = np.max(np.linalg.eigvals(_lag_closed_loops(A, B, Kx, Kf0, grid[1:])).real,
-                     axis=1)
-    unstable = np.flatnonzero(growths >= 0)
-    if unstable.size:
-        j = int(unstable[0]) + 1
-        return float(brentq(growth, grid[j - 1], grid[j], rtol=rtol, xtol=1e-12))
+    for start in range(1, grid.size, _LAG_SCAN_BLOCK):
+        taus = grid[start:start + _LAG_SCAN_BLOCK]
+        growths = np.max(np.linalg.eigvals(_lag_closed_loops(A, B, Kx, Kf0, taus)).real,
+                         axis=1)
+        unstable = np.flatnonzero(growths >= 0)
+        if unstable.size:
+            j = start + int(unstable[0])
+            return float(brentq(growth, grid[j - 1], grid[j], rtol=rtol, xtol=1e-12))
     return math.inf
+
+
+#: Grid points of the lag-margin scan per batched eigenvalue call.
+_LAG_SCAN_BLOCK = 16
 
 
 def _freq_response(A, B, C, w):
@@ -500,7 +508,7 @@ def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
     pm = np.full(k, math.inf)
     wpc = np.full(k, math.nan)
     wgc = np.full(k, math.nan)
-    w = np.geomspace(w_min, w_max, points)
+    w = _frequency_grid(w_min, w_max, points)
     for i in range(k):
         others = [j for j in range(k) if j != i]
         Ai = A - B[:, others] @ K[others]
@@ -528,6 +536,13 @@ def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
                 if abs(math.log(g)) < abs(math.log(gm[i])):
                     gm[i], wpc[i] = g, x
     return gm, pm, wpc, wgc
+
+
+@functools.lru_cache(maxsize=8)
+def _frequency_grid(w_min: float, w_max: float, points: int) -> np.ndarray:
+    w = np.geomspace(w_min, w_max, points)
+    w.setflags(write=False)
+    return w
 
 
 @dataclass(frozen=True, repr=False)
@@ -767,8 +782,9 @@ def design_control(veh: Vehicle, eq: Equilibrium, tau_s: np.ndarray | None = Non
         nan = np.full((ns, ns), np.nan)
         return LinearControl(inputs, nan, np.full((ns, k), np.nan), np.zeros((ns, 2)), Q, R,
                              False, 0, 0.0, None, None, math.nan, "no equilibrium", **extra)
-    A4, B4, _ = reduced_model(veh, eq)
-    A, B, Bd = augmented_model(veh, eq, tau)
+    A4, B4, Bd4 = reduced_model(veh, eq)
+    # without motor lag the augmented model is the reduced one (not evaluated twice)
+    A, B, Bd = augmented_model(veh, eq, tau) if lagged else (A4, B4, Bd4)
     extra.update(A4=A4, B4=B4)
     if not (np.all(np.isfinite(A)) and np.all(np.isfinite(B))):
         return LinearControl(inputs, A, B, Bd, Q, R, False, 0, 0.0, None, None, math.nan,

@@ -367,7 +367,7 @@ def _power_weights(veh: Vehicle, idx: np.ndarray) -> tuple[np.ndarray, bool]:
 # --- the static hover: a convex programme in the thrusts, solved on its dual ---------------
 
 
-def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
+def _static(prob: _Problem, obj: _Objective, lin=None) -> np.ndarray | None:
     """The static hover's thrusts (scaled) of least objective, or None when none exists.
 
     At ``w = 0, n = e_z`` the residual is ``r0 + A f``; the programme
@@ -376,11 +376,44 @@ def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
     ``f = argmin_box(A^T mu)``; semismooth Newton on ``A f(mu) + r0 = 0`` with a backtracking
     line search on ``q``. An infeasible programme has an unbounded dual: no convergence.
     """
-    r0, A = prob.linear_part()
+    r0, A = prob.linear_part() if lin is None else lin
     if not np.all(np.isfinite(A)):
         return None
+    # the programme's data are the same at every wheel momentum (no gyroscopic moment at
+    # rest): solved once per distinct programme (A in its memory order: the rounding of the
+    # products follows it)
+    if A.flags.f_contiguous or A.flags.c_contiguous:
+        f = _static_thrusts(r0.tobytes(), A.tobytes(), A.shape, bool(A.flags.f_contiguous),
+                            prob.lo.tobytes(), prob.fmax.tobytes(), obj.kind, obj.c.tobytes())
+    else:
+        f = _static_dual(r0, A, prob.lo, prob.fmax, obj)
+    if f is None:
+        return None
+    v = np.r_[0.0, 0.0, 0.0, f]
+    if float(np.max(np.abs(prob.residual(v)))) > RESIDUAL_TOL:
+        return None
+    return v
+
+
+@functools.lru_cache(maxsize=1024)
+def _static_thrusts(r0_bytes: bytes, a_bytes: bytes, a_shape: tuple, fortran: bool,
+                    lo_bytes: bytes, hi_bytes: bytes, kind: str,
+                    c_bytes: bytes) -> np.ndarray | None:
+    """:func:`_static_dual` on the programme's data given as bytes (the cache key)."""
+    A = np.frombuffer(a_bytes).reshape(a_shape)
+    A = np.asfortranarray(A) if fortran else A.copy()
+    obj = _Objective.__new__(_Objective)
+    obj.kind, obj.c = kind, np.frombuffer(c_bytes).copy()
+    f = _static_dual(np.frombuffer(r0_bytes).copy(), A, np.frombuffer(lo_bytes).copy(),
+                     np.frombuffer(hi_bytes).copy(), obj)
+    if f is not None:
+        f.setflags(write=False)
+    return f
+
+
+def _static_dual(r0, A, lo, hi, obj: _Objective) -> np.ndarray | None:
+    """Semismooth Newton on the dual of the static programme (see :func:`_static`)."""
     b = -r0
-    lo, hi = prob.lo, prob.fmax
     if np.any(hi <= lo):
         return None
 
@@ -415,10 +448,7 @@ def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
         q, f, d = qn, fn, dn
         if np.max(np.abs(mu)) > 1e12:
             return None  # unbounded dual: no static hover within the limits
-    v = np.r_[0.0, 0.0, 0.0, f]
-    if float(np.max(np.abs(prob.residual(v)))) > RESIDUAL_TOL:
-        return None
-    return v
+    return f
 
 
 # --- the spinning members: start grid and Newton on the KKT conditions ---------------------
@@ -1064,7 +1094,7 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
             found = [(_as_static(c, v, prob, weights, have_d), v) for c, v in found]
         else:
             if authority.static_hover:
-                add(_static(prob, obj))
+                add(_static(prob, obj, (r0, A)))
             settled = (rule == "prefer-static" and authority.positive
                        and any(c.kind == "static" for c, _ in found))
             if rule != "static-only" and (complete or not settled):

@@ -400,3 +400,44 @@ def test_bad_quad_fast_spin_equilibrium_is_found():
     assert eq.spin_rate_rad_s == pytest.approx(98.278, rel=1e-4)
     assert eq.tilt_deg == pytest.approx(0.581, abs=1e-3)
     np.testing.assert_allclose(eq.thrust_n, [0.0, 1.63537, 1.63285, 1.63537], atol=1e-5)
+
+
+def test_thrust_free_grid_is_a_function_of_the_vehicle_alone():
+    # the start grid's residual with every thrust 0 (and its axis derivative) is computed once
+    # per vehicle and shared by its cases: it equals the one computed afresh for any failed set
+    d = load(Path(__file__).resolve().parents[1] / "data" / "designs" / "heavy_hex.toml")
+    shared = Vehicle.from_design(d)
+    P = E._grid(10.0).reshape(-1, 3)
+    r_a, B_a = E._grid_at_rest(E._Problem(shared, ()), P, True)
+    for failed in [(shared.names[0],), shared.names[1:3]]:
+        fresh = Vehicle.from_design(d)
+        r_b, B_b = E._grid_at_rest(E._Problem(fresh, failed), P, True)
+        np.testing.assert_array_equal(r_a, r_b)
+        np.testing.assert_array_equal(B_a, B_b)
+        r_c, B_c = E._grid_at_rest(E._Problem(shared, failed), P, True)
+        assert r_c is r_a and B_c is B_a
+
+
+def test_batched_start_refinement_equals_one_start_at_a_time():
+    # refining several starts in one batched evaluation gives, start by start, the numbers of
+    # refining each alone (bitwise): the operating point does not depend on how many starts
+    # a case has
+    veh = Vehicle.from_design(ring_design(drag=(0.0007, 0.0007, 0.0002), max_thrust_n=2.0))
+    for failed, ratio in [(("r0",), None), (("r0",), np.array([1.0, 0.8, 1.2]))]:
+        prob = E._Problem(veh, failed)
+        _, A = prob.linear_part()
+        P, _, merit = E._scan(prob, A, ratio)
+        starts = [P[i] for i in E._pick_starts(P, merit, 3)] + [P[3, 2, 1], P[-4, 5, 7]]
+        together = E._refine_many(prob, A, starts, ratio)
+        for p, v in zip(starts, together, strict=True):
+            np.testing.assert_array_equal(E._refine(prob, A, p, ratio), v)
+
+
+def test_row_sums_equal_einsum():
+    # the scan's row sums are einsum's sums in the same order (bitwise)
+    rng = np.random.default_rng(7)
+    X = rng.normal(size=(50, 4, 6)) * 10.0 ** rng.integers(-4, 4, size=(50, 4, 6))
+    Y = rng.normal(size=(50, 4, 6))
+    r = rng.normal(size=(50, 4))
+    np.testing.assert_array_equal(E._rows_outer(X, Y), np.einsum("mia,mib->mab", X, Y))
+    np.testing.assert_array_equal(E._rows_dot(X, r), np.einsum("mia,mi->ma", X, r))

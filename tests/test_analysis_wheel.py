@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 
+from kit.analysis import equilibrium as E
 from kit.analysis import wheel as W
 from kit.analysis.vehicle import Vehicle
 from kit.models import ring_design
@@ -52,3 +53,14 @@ def test_momentum_grid_is_signed_and_symmetric():
     assert g[0] == pytest.approx(-0.1) and g[-1] == pytest.approx(0.1)
     assert 0.0 in g and len(g) == 11
     np.testing.assert_allclose(g, -g[::-1])
+
+
+def test_curve_points_are_the_complete_search_operating_points(veh):
+    # the curve solves with complete=False (no spinning candidates where the rule has already
+    # chosen the static hover): its spin rates are those of the complete search
+    h = W.momentum_grid(veh.design.wheel.max_momentum_n_m_s, per_side=2)
+    for failed in [(), (veh.names[0],)]:
+        curve = W.wheel_curve(veh, failed, None, h)
+        for hi, spin in zip(h, curve.spin_rate_rad_s, strict=True):
+            eq = E.solve(veh.with_wheel_momentum(hi), failed)
+            assert spin == eq.spin_rate_rad_s

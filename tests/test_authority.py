@@ -114,3 +114,29 @@ def test_flat_attainable_set_gives_zero_or_negative():
                                                    "yaw_n_m"}
     # the allocation used is the kit's own (hover.allocation_matrix)
     assert allocation_matrix(veh).shape == (4, 4)
+
+
+def test_authority_is_shared_across_wheel_momenta_and_equals_a_fresh_computation():
+    # the index depends on the working allocation, the limits and the weight alone: vehicles
+    # that differ only in wheel momentum share it, and the shared value is the one computed
+    # afresh (common practice, no source)
+    from kit.analysis import authority as au
+
+    d = ring_design(n_rotors=6, wheel={"inertia_kg_m2": 1e-4, "max_speed_rad_s": 500.0,
+                                       "mass_kg": 0.05, "position_m": [0.0, 0.0, 0.02]})
+    veh = Vehicle.from_design(d)
+    for failed in [(), ("r0",), ("r0", "r3")]:
+        a = static_authority(veh, failed)
+        b = static_authority(veh.with_wheel_momentum(0.03), failed)
+        assert a is b
+        work = veh.working_mask(failed)
+        B = allocation_matrix(veh)[:, work]
+        fresh = au._static_authority.__wrapped__(
+            failed, B.tobytes(), B.shape, bool(B.flags.f_contiguous and not B.flags.c_contiguous),
+            veh.max_thrust_n[work].tobytes(), veh.weight_n)
+        assert fresh.index == a.index and fresh.static_hover == a.static_hover
+        np.testing.assert_array_equal(fresh.per_axis, a.per_axis)
+        if a.rank == 4:  # (a flat set's index comes from bounded least squares instead)
+            G = np.array([veh.weight_n, 0.0, 0.0, 0.0])
+            fmax = veh.max_thrust_n[work]
+            assert a.index == authority_index(B, np.zeros(fmax.size), fmax, G)

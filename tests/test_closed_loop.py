@@ -411,3 +411,50 @@ def test_gust_monte_carlo_agrees_with_rice(quad):
     # stays within about 30 % here (our figure: ratio 0.9-1.0, standard error 0.07-0.1)
     assert 0.7 < g.ratio < 1.3
     json.dumps(g.to_dict())
+
+
+def _lag_margin_one_by_one(A, B, Kx, Kf=None, tau_max_s=C.LAG_SEARCH_MAX_S, rtol=1e-6):
+    # the lag-margin search written out one closed loop at a time (the definition: the first
+    # stable-to-unstable step of the scan, then brentq on the largest real part)
+    from scipy.optimize import brentq
+
+    def growth(tau):
+        return float(np.max(np.linalg.eigvals(C.lag_closed_loop(A, B, Kx, Kf, tau)).real))
+
+    if growth(0.0) >= 0:
+        return 0.0
+    prev = 0.0
+    for tau in np.geomspace(1e-5, tau_max_s, 80):
+        if growth(tau) >= 0:
+            return float(brentq(growth, prev, tau, rtol=rtol, xtol=1e-12))
+        prev = tau
+    return math.inf
+
+
+@pytest.mark.parametrize("which", ["quad", "lagged"])
+@pytest.mark.parametrize("failed", [(), ("r0",)])
+def test_batched_lag_margin_scan_equals_the_one_by_one_search(which, failed, quad, lagged):
+    # the scan's closed loops go through one batched eigenvalue call: the same number
+    # (bitwise) as the search written out one loop at a time
+    veh = quad if which == "quad" else lagged
+    c = C.design_control(veh, E.solve(veh, failed))
+    Kx = c.K[:, :4]
+    Kf = c.K[:, 4:] if c.has_motor_lag else None
+    assert C.lag_margin(c.A4, c.B4, Kx, Kf) == _lag_margin_one_by_one(c.A4, c.B4, Kx, Kf)
+    # closed form of the double integrator (as above): the same through both
+    A = np.array([[0.0, 1.0], [0.0, 0.0]])
+    B = np.array([[0.0], [1.0]])
+    K = np.array([[4.0, 3.0]])
+    assert C.lag_margin(A, B, K) == _lag_margin_one_by_one(A, B, K)
+
+
+def test_channel_margins_modal_response_is_the_direct_one(quad):
+    # the modal frequency response computed once per channel equals C (jw - A)^-1 B solved
+    # at each frequency (definition of the transfer function)
+    c = C.design_control(quad, E.solve(quad, ("r0",)))
+    A, B, K = c.A, c.B, c.K
+    Ai = A - B[:, 1:] @ K[1:]
+    w = np.geomspace(1e-2, 1e3, 7)
+    resp = C._freq_response_fn(Ai, B[:, [0]], K[[0]])(w)
+    direct = [(K[[0]] @ np.linalg.solve(1j * x * np.eye(4) - Ai, B[:, [0]])).item() for x in w]
+    np.testing.assert_allclose(resp, direct, rtol=1e-9)

@@ -40,6 +40,7 @@ facets; from memory).
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 from dataclasses import dataclass
@@ -191,9 +192,22 @@ def static_authority(veh: Vehicle, failed=()) -> StaticAuthority:
     failed = tuple(failed)
     work = veh.working_mask(failed)
     W = veh.weight_n
-    G = np.array([W, 0.0, 0.0, 0.0])
     B = allocation_matrix(veh)[:, work]
     fmax = veh.max_thrust_n[work]
+    # a function of the working allocation, the limits and the weight alone (not of the wheel
+    # momentum or the case): one computation per distinct set, for the many cases of a study
+    # (the memory order is part of the key: the facet sums' rounding follows it)
+    fortran = bool(B.flags.f_contiguous and not B.flags.c_contiguous)
+    return _static_authority(failed, B.tobytes(), B.shape, fortran, fmax.tobytes(), float(W))
+
+
+@functools.lru_cache(maxsize=4096)
+def _static_authority(failed: tuple, b_bytes: bytes, b_shape: tuple, fortran: bool,
+                      fmax_bytes: bytes, W: float) -> StaticAuthority:
+    B = np.frombuffer(b_bytes).reshape(b_shape)
+    B = np.asfortranarray(B) if fortran else B.copy()
+    fmax = np.frombuffer(fmax_bytes).copy()
+    G = np.array([W, 0.0, 0.0, 0.0])
     fmin = np.zeros_like(fmax)
     k = B.shape[1]
     rank = int(np.linalg.matrix_rank(B)) if k else 0

@@ -60,6 +60,7 @@ Systems & Control Letters 4 (1984) (from memory). Hautus, PBH test (from memory)
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass
 
@@ -272,17 +273,17 @@ def _pbh_minimum(A, B, starts, span) -> float:
     best = f.copy()
     h = 1e-6 * span
     for _ in range(12):
-        _, gx = f_grad(lam + h)
-        _, gy = f_grad(lam + 1j * h)
+        # both differences in one batched evaluation
+        _, gxy = f_grad(np.concatenate((lam + h, lam + 1j * h)))
+        gx, gy = gxy[:lam.size], gxy[lam.size:]
         Hs = np.stack([(gx - g) / h, (gy - g) / h], axis=2)
         Hs = 0.5 * (Hs + np.swapaxes(Hs, 1, 2))
         step = np.empty_like(g)
-        for m in range(lam.size):
-            ev = np.linalg.eigvalsh(Hs[m])
-            if ev[0] > 0:
-                step[m] = -np.linalg.solve(Hs[m], g[m])
-            else:  # not convex here: a gradient step of the span's size
-                step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
+        convex = np.linalg.eigvalsh(Hs)[:, 0] > 0
+        if np.any(convex):
+            step[convex] = -np.linalg.solve(Hs[convex], g[convex][..., None])[..., 0]
+        for m in np.flatnonzero(~convex):  # not convex here: a gradient step of the span's size
+            step[m] = -g[m] / max(float(np.linalg.norm(g[m])), 1e-300) * 0.1 * span
         dl = step[:, 0] + 1j * step[:, 1]
         t = np.ones(lam.size)
         for _ in range(6):
@@ -398,7 +399,19 @@ def lag_closed_loop(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray
     Kf = np.zeros((k, k)) if Kf is None else Kf
     if tau_s <= 0:
         return A - B @ np.linalg.solve(np.eye(k) + Kf, Kx)
-    return np.block([[A, B], [-Kx / tau_s, -(np.eye(k) + Kf) / tau_s]])
+    return _lag_closed_loops(A, B, Kx, Kf, np.array([tau_s], float))[0]
+
+
+def _lag_closed_loops(A, B, Kx, Kf, taus) -> np.ndarray:
+    """:func:`lag_closed_loop` at every ``tau > 0`` of ``taus``, stacked (the same entries)."""
+    n, k = B.shape
+    t = taus[:, None, None]
+    M = np.empty((taus.size, n + k, n + k))
+    M[:, :n, :n] = A
+    M[:, :n, n:] = B
+    M[:, n:, :n] = -Kx / t
+    M[:, n:, n:] = -(np.eye(k) + Kf) / t
+    return M
 
 
 def lag_margin(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray | None = None,
@@ -426,22 +439,47 @@ def lag_margin(A: np.ndarray, B: np.ndarray, Kx: np.ndarray, Kf: np.ndarray | No
     if growth(0.0) >= 0:
         return 0.0
     grid = np.r_[0.0, np.geomspace(1e-5, tau_max_s, 80)]
-    prev = 0.0
-    for tau in grid[1:]:
-        if growth(tau) >= 0:
-            return float(brentq(growth, prev, tau, rtol=rtol, xtol=1e-12))
-        prev = tau
+    # the scan's closed loops in batched eigenvalue calls (LAPACK per matrix, as one by one),
+    # a block of the grid at a time up to the first unstable point
+    k = B.shape[1]
+    Kf0 = np.zeros((k, k)) if Kf is None else Kf
+    for start in range(1, grid.size, _LAG_SCAN_BLOCK):
+        taus = grid[start:start + _LAG_SCAN_BLOCK]
+        growths = np.max(np.linalg.eigvals(_lag_closed_loops(A, B, Kx, Kf0, taus)).real,
+                         axis=1)
+        unstable = np.flatnonzero(growths >= 0)
+        if unstable.size:
+            j = start + int(unstable[0])
+            return float(brentq(growth, grid[j - 1], grid[j], rtol=rtol, xtol=1e-12))
     return math.inf
+
+
+#: Grid points of the lag-margin scan per batched eigenvalue call.
+_LAG_SCAN_BLOCK = 16
 
 
 def _freq_response(A, B, C, w):
     """``C (j w I - A)^-1 B`` for scalar input and output, at the frequencies ``w`` (rad/s)."""
+    return _freq_response_fn(A, B, C)(w)
+
+
+def _freq_response_fn(A, B, C):
+    """:func:`_freq_response` of one system as a function of ``w``: the modal decomposition
+    (or the fallback's matrices) computed once, for the many evaluations of a root search."""
     lam, V = np.linalg.eig(A)
     if np.linalg.cond(V) < 1e8:
         cb = (C @ V).ravel() * np.linalg.solve(V, B).ravel()
-        return (cb[None, :] / (1j * w[:, None] - lam[None, :])).sum(axis=1)
+
+        def modal(w):
+            return (cb[None, :] / (1j * w[:, None] - lam[None, :])).sum(axis=1)
+
+        return modal
     n = A.shape[0]
-    return np.array([(C @ np.linalg.solve(1j * x * np.eye(n) - A, B)).item() for x in w])
+
+    def direct(w):
+        return np.array([(C @ np.linalg.solve(1j * x * np.eye(n) - A, B)).item() for x in w])
+
+    return direct
 
 
 def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
@@ -470,14 +508,16 @@ def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
     pm = np.full(k, math.inf)
     wpc = np.full(k, math.nan)
     wgc = np.full(k, math.nan)
-    w = np.geomspace(w_min, w_max, points)
+    w = _frequency_grid(w_min, w_max, points)
     for i in range(k):
         others = [j for j in range(k) if j != i]
         Ai = A - B[:, others] @ K[others]
         Bi, Ci = B[:, [i]], K[[i]]
 
-        def L(x, Ai=Ai, Bi=Bi, Ci=Ci):
-            return _freq_response(Ai, Bi, Ci, np.atleast_1d(x))
+        resp = _freq_response_fn(Ai, Bi, Ci)
+
+        def L(x, resp=resp):
+            return resp(np.atleast_1d(x))
 
         Lw = L(w)
         mag = np.abs(Lw) - 1.0
@@ -496,6 +536,13 @@ def channel_margins(A: np.ndarray, B: np.ndarray, K: np.ndarray,
                 if abs(math.log(g)) < abs(math.log(gm[i])):
                     gm[i], wpc[i] = g, x
     return gm, pm, wpc, wgc
+
+
+@functools.lru_cache(maxsize=8)
+def _frequency_grid(w_min: float, w_max: float, points: int) -> np.ndarray:
+    w = np.geomspace(w_min, w_max, points)
+    w.setflags(write=False)
+    return w
 
 
 @dataclass(frozen=True, repr=False)
@@ -735,8 +782,9 @@ def design_control(veh: Vehicle, eq: Equilibrium, tau_s: np.ndarray | None = Non
         nan = np.full((ns, ns), np.nan)
         return LinearControl(inputs, nan, np.full((ns, k), np.nan), np.zeros((ns, 2)), Q, R,
                              False, 0, 0.0, None, None, math.nan, "no equilibrium", **extra)
-    A4, B4, _ = reduced_model(veh, eq)
-    A, B, Bd = augmented_model(veh, eq, tau)
+    A4, B4, Bd4 = reduced_model(veh, eq)
+    # without motor lag the augmented model is the reduced one (not evaluated twice)
+    A, B, Bd = augmented_model(veh, eq, tau) if lagged else (A4, B4, Bd4)
     extra.update(A4=A4, B4=B4)
     if not (np.all(np.isfinite(A)) and np.all(np.isfinite(B))):
         return LinearControl(inputs, A, B, Bd, Q, R, False, 0, 0.0, None, None, math.nan,

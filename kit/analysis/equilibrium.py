@@ -367,7 +367,7 @@ def _power_weights(veh: Vehicle, idx: np.ndarray) -> tuple[np.ndarray, bool]:
 # --- the static hover: a convex programme in the thrusts, solved on its dual ---------------
 
 
-def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
+def _static(prob: _Problem, obj: _Objective, lin=None) -> np.ndarray | None:
     """The static hover's thrusts (scaled) of least objective, or None when none exists.
 
     At ``w = 0, n = e_z`` the residual is ``r0 + A f``; the programme
@@ -376,11 +376,44 @@ def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
     ``f = argmin_box(A^T mu)``; semismooth Newton on ``A f(mu) + r0 = 0`` with a backtracking
     line search on ``q``. An infeasible programme has an unbounded dual: no convergence.
     """
-    r0, A = prob.linear_part()
+    r0, A = prob.linear_part() if lin is None else lin
     if not np.all(np.isfinite(A)):
         return None
+    # the programme's data are the same at every wheel momentum (no gyroscopic moment at
+    # rest): solved once per distinct programme (A in its memory order: the rounding of the
+    # products follows it)
+    if A.flags.f_contiguous or A.flags.c_contiguous:
+        f = _static_thrusts(r0.tobytes(), A.tobytes(), A.shape, bool(A.flags.f_contiguous),
+                            prob.lo.tobytes(), prob.fmax.tobytes(), obj.kind, obj.c.tobytes())
+    else:
+        f = _static_dual(r0, A, prob.lo, prob.fmax, obj)
+    if f is None:
+        return None
+    v = np.r_[0.0, 0.0, 0.0, f]
+    if float(np.max(np.abs(prob.residual(v)))) > RESIDUAL_TOL:
+        return None
+    return v
+
+
+@functools.lru_cache(maxsize=1024)
+def _static_thrusts(r0_bytes: bytes, a_bytes: bytes, a_shape: tuple, fortran: bool,
+                    lo_bytes: bytes, hi_bytes: bytes, kind: str,
+                    c_bytes: bytes) -> np.ndarray | None:
+    """:func:`_static_dual` on the programme's data given as bytes (the cache key)."""
+    A = np.frombuffer(a_bytes).reshape(a_shape)
+    A = np.asfortranarray(A) if fortran else A.copy()
+    obj = _Objective.__new__(_Objective)
+    obj.kind, obj.c = kind, np.frombuffer(c_bytes).copy()
+    f = _static_dual(np.frombuffer(r0_bytes).copy(), A, np.frombuffer(lo_bytes).copy(),
+                     np.frombuffer(hi_bytes).copy(), obj)
+    if f is not None:
+        f.setflags(write=False)
+    return f
+
+
+def _static_dual(r0, A, lo, hi, obj: _Objective) -> np.ndarray | None:
+    """Semismooth Newton on the dual of the static programme (see :func:`_static`)."""
     b = -r0
-    lo, hi = prob.lo, prob.fmax
     if np.any(hi <= lo):
         return None
 
@@ -415,10 +448,7 @@ def _static(prob: _Problem, obj: _Objective) -> np.ndarray | None:
         q, f, d = qn, fn, dn
         if np.max(np.abs(mu)) > 1e12:
             return None  # unbounded dual: no static hover within the limits
-    v = np.r_[0.0, 0.0, 0.0, f]
-    if float(np.max(np.abs(prob.residual(v)))) > RESIDUAL_TOL:
-        return None
-    return v
+    return f
 
 
 # --- the spinning members: start grid and Newton on the KKT conditions ---------------------
@@ -468,8 +498,8 @@ def _fit(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray,
         At = np.broadcast_to(A, (P.shape[0],) + A.shape).copy()
         At[:, 3, :] *= nz[:, None]
         if ratio is None:
-            AtA = np.einsum("mik,mil->mkl", At, At)
-            rhs = -np.einsum("mik,mi->mk", At, r0)
+            AtA = _rows_outer(At, At)
+            rhs = -_rows_dot(At, r0)
             F = np.linalg.solve(rho * AtA + np.eye(prob.k), rho * rhs[..., None])[..., 0]
         else:
             a = At @ ratio
@@ -491,6 +521,23 @@ def _fit(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray,
     return Fc, merit
 
 
+def _rows_outer(X: np.ndarray, Y: np.ndarray) -> np.ndarray:
+    """``sum_i X[m, i, a] Y[m, i, b]`` over the residual's four rows, summed in row order
+    (the same sums as ``einsum("mia,mib->mab")``, without its general loop)."""
+    out = X[:, 0, :, None] * Y[:, 0, None, :]
+    for i in range(1, X.shape[1]):
+        out = out + X[:, i, :, None] * Y[:, i, None, :]
+    return out
+
+
+def _rows_dot(X: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """``sum_i X[m, i, a] r[m, i]``, summed in row order (as ``einsum("mia,mi->ma")``)."""
+    out = X[:, 0, :] * r[:, 0, None]
+    for i in range(1, X.shape[1]):
+        out = out + X[:, i, :] * r[:, i, None]
+    return out
+
+
 def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
     """Score the start grid (:func:`_grid`) with the thrusts entering linearly.
 
@@ -500,8 +547,8 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
     G = _grid(prob.w_s)
     shape = G.shape[:3]
     P = G.reshape(-1, 3)
-    V = np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1)
-    r0 = prob.residual(V).reshape(shape + (4,))
+    r0, B = _grid_at_rest(prob, P, ratio is None)
+    r0 = r0.reshape(shape + (4,))
     F = np.zeros(shape + (prob.k,))
     merit = np.zeros(shape)
     for j in range(shape[1]):
@@ -513,7 +560,7 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
         # at fast spin the gyroscopic moment grows as w^2 sin(tilt): the equilibria lie in a
         # valley far narrower in tilt than the grid's rings, so each grid point is scored by
         # the best point of its cell (the axis moved by the linearised fit below)
-        B = prob.jacobian(V)[..., 1:3].reshape(shape + (4, 2))
+        B = B.reshape(shape + (4, 2))
         G = G.copy()
         for j in range(shape[1]):
             Pj = G[:, j].reshape(-1, 3)
@@ -526,6 +573,25 @@ def _scan(prob: _Problem, A: np.ndarray, ratio: np.ndarray | None):
             F[:, j] = Fj.reshape(shape[0], shape[2], prob.k)
             merit[:, j] = np.where(better, mc, mj).reshape(shape[0], shape[2])
     return G, F, merit
+
+
+def _grid_at_rest(prob: _Problem, P: np.ndarray, with_axis: bool):
+    """The scaled residual at the grid points ``P`` with every thrust 0, and (``with_axis``) its
+    derivative in ``(n_x, n_y)`` there: functions of the vehicle alone (no thrust enters), so
+    computed once per vehicle and shared by its cases."""
+    cache = prob.veh._cache
+    key = ("grid_at_rest", prob.w_s)
+    r0, B = cache.get(key, (None, None))
+    if r0 is None or (with_axis and B is None):
+        V = np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1)
+        if r0 is None:
+            r0 = prob.residual(V)
+            r0.setflags(write=False)
+        if with_axis:
+            B = prob.jacobian(V)[..., 1:3]
+            B.setflags(write=False)
+        cache[key] = (r0, B)
+    return r0, B
 
 
 #: Largest move of the spin axis (in n_x and n_y) of :func:`_fit_axis`: half the spacing of
@@ -552,14 +618,14 @@ def _fit_axis(prob: _Problem, A: np.ndarray, P: np.ndarray, r0: np.ndarray, B: n
     B = np.where(ok[:, None, None], B, 0.0)
     r0 = np.where(ok[:, None], r0, 0.0)
     WB = W @ B
-    lhs = rho * np.einsum("mia,mib->mab", B, WB) + (1e-3 / _AXIS_CELL**2) * np.eye(2)
-    rhs = -rho * np.einsum("mia,mi->ma", WB, r0)
+    lhs = rho * _rows_outer(B, WB) + (1e-3 / _AXIS_CELL**2) * np.eye(2)
+    rhs = -rho * _rows_dot(WB, r0)
     d = np.clip(np.linalg.solve(lhs, rhs[..., None])[..., 0], -_AXIS_CELL, _AXIS_CELL)
     smax = math.sin(MAX_TILT_RAD)
     Pn = P.copy()
     Pn[:, 1:] = np.clip(P[:, 1:] + d, -smax, smax)
     d = Pn[:, 1:] - P[:, 1:]
-    b = r0 + np.einsum("mij,mj->mi", B, d)
+    b = r0 + (B[:, :, 0] * d[:, 0, None] + B[:, :, 1] * d[:, 1, None])
     F = -rho * (b @ W.T) @ At
     Fc = np.clip(F, prob.lo, prob.fmax)
     res = b + Fc @ At.T
@@ -572,14 +638,25 @@ def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | No
     """Shrink a local grid (3 x 3 x 3 in ``log |w|``, ``n_x``, ``n_y``) around a start three
     times (halving its span), keeping its best point; the merit of :func:`_fit` with the rotor
     momentum of the fitted thrusts added to ``r0``. Returns ``v = (w, n_x, n_y, f)``."""
+    return _refine_many(prob, A, [p], ratio)[0]
+
+
+def _refine_many(prob: _Problem, A: np.ndarray, starts, ratio: np.ndarray | None) -> list:
+    """:func:`_refine` of several starts at once: each start's local grid is its own block of
+    27 rows in the batched evaluations (row by row the same arithmetic)."""
     steps = np.array([-1.0, 0.0, 1.0])
     Dw, Dx, Dy = (a.ravel() for a in np.meshgrid(steps, steps, steps, indexing="ij"))
     smax = math.sin(MAX_TILT_RAD)
-    best_v, best_m = None, math.inf
+    s, m = len(starts), Dw.size
+    if s == 0:
+        return []
+    best_v: list = [None] * s
+    best_m = [math.inf] * s
+    ps = [np.asarray(p, float) for p in starts]
     span_w, span_n = 0.25, 0.08
     for _ in range(3):
-        P = np.column_stack([p[0] * np.exp(span_w * Dw), p[1] + span_n * Dx,
-                             p[2] + span_n * Dy])
+        P = np.concatenate([np.column_stack([p[0] * np.exp(span_w * Dw), p[1] + span_n * Dx,
+                                             p[2] + span_n * Dy]) for p in ps])
         P[:, 1:] = np.clip(P[:, 1:], -smax, smax)
         V = np.concatenate([P, np.zeros((P.shape[0], prob.k))], axis=1)
         r0 = prob.residual(V)
@@ -588,10 +665,13 @@ def _refine(prob: _Problem, A: np.ndarray, p: np.ndarray, ratio: np.ndarray | No
         V[:, 3:] = F
         extra = prob.residual(V) - r0 - _lin(A, P, F)
         F, merit = _fit(prob, A, P, r0 + extra, ratio, _RHO_REFINE)
-        i = int(np.argmin(np.where(np.isfinite(merit), merit, np.inf)))
-        if merit[i] < best_m:
-            best_m, best_v = float(merit[i]), np.r_[P[i], F[i]]
-        p = P[i]
+        for b in range(s):
+            rows = slice(b * m, (b + 1) * m)
+            mb = merit[rows]
+            i = int(np.argmin(np.where(np.isfinite(mb), mb, np.inf)))
+            if mb[i] < best_m[b]:
+                best_m[b], best_v[b] = float(mb[i]), np.r_[P[rows][i], F[rows][i]]
+            ps[b] = P[rows][i]
         span_w, span_n = span_w / 2, span_n / 2
     return best_v
 
@@ -636,6 +716,11 @@ def _pick_starts(G: np.ndarray, merit: np.ndarray, per_sense: int) -> list[tuple
     return out
 
 
+_FREE_LO = np.full(3, -np.inf)
+_FREE_HI = np.full(3, np.inf)
+_ZERO3 = np.zeros(3)
+
+
 def _constraint_hessian(prob: _Problem, v: np.ndarray, J: np.ndarray, lam: np.ndarray):
     """``sum_j lam_j d^2 r_j / dv^2`` by forward differences of the generated Jacobian.
 
@@ -672,8 +757,8 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
     None.
     """
     n = v0.size
-    lo = np.r_[-np.inf, -np.inf, -np.inf, prob.lo]
-    hi = np.r_[np.inf, np.inf, np.inf, prob.fmax]
+    lo = np.concatenate((_FREE_LO, prob.lo))
+    hi = np.concatenate((_FREE_HI, prob.fmax))
     v = np.clip(v0, lo, hi)
     fixed = np.zeros(n, bool)
     nu = 1.0
@@ -683,12 +768,24 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         return obj.value(x[3:])
 
     def grad(x):
-        return np.r_[0.0, 0.0, 0.0, obj.grad(x[3:])]
+        return np.concatenate((_ZERO3, obj.grad(x[3:])))
 
     released = 0
     stationary, since = None, 0  # the last stationary point before a limit was released
+    memo: dict = {}
+
+    def residual(x):
+        # the residual of the step just accepted is the next iterate's: evaluated once
+        key = x.tobytes()
+        r = memo.get(key)
+        if r is None:
+            if len(memo) > 8:
+                memo.clear()
+            r = memo[key] = prob.residual(x)
+        return r
+
     for _ in range(max_iter):
-        c = prob.residual(v)
+        c = residual(v)
         J = prob.jacobian(v)
         if not (np.all(np.isfinite(c)) and np.all(np.isfinite(J))):
             return None
@@ -699,8 +796,8 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
             lam = np.linalg.lstsq(JF.T, g[free], rcond=None)[0]
         H = -_constraint_hessian(prob, v, J, lam)
         H[3:, 3:] += np.diag(obj.hess_diag(v[3:]))
-        HF = H[np.ix_(free, free)]
         nF = int(free.sum())
+        HF = H if nF == n else H[np.ix_(free, free)]
         # convexify on the null space of the constraint Jacobian
         _, s, Vt = np.linalg.svd(JF)
         rank = int(np.sum(s > 1e-10 * max(s[0], 1e-300)))
@@ -709,8 +806,11 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
             ev = np.linalg.eigvalsh(Z.T @ HF @ Z)
             if ev[0] < 1e-8:
                 HF = HF + (1e-8 - ev[0] + 1e-6) * np.eye(nF)
-        K = np.block([[HF, JF.T], [JF, np.zeros((4, 4))]])
-        rhs = np.r_[-g[free], -c]
+        K = np.zeros((nF + 4, nF + 4))
+        K[:nF, :nF] = HF
+        K[:nF, nF:] = JF.T
+        K[nF:, :nF] = JF
+        rhs = np.concatenate((-g[free], -c))
         try:
             sol = np.linalg.solve(K, rhs)
         except np.linalg.LinAlgError:
@@ -748,9 +848,10 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         d /= cap
         # largest step within the limits
         amax, block = 1.0, -1
-        for i in np.flatnonzero(free & (d != 0)):
-            bound = hi[i] if d[i] > 0 else lo[i]
-            a = (bound - v[i]) / d[i]
+        moving = np.flatnonzero(free & (d != 0))
+        dm = d[moving]
+        reach = (np.where(dm > 0, hi[moving], lo[moving]) - v[moving]) / dm
+        for i, a in zip(moving[reach < 1.0], reach[reach < 1.0], strict=True):
             if a < amax:
                 amax, block = max(a, 0.0), int(i)
         nu = max(nu, 1.5 * float(np.max(np.abs(lam_new))))
@@ -760,14 +861,14 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
         ref = (nu, psi0, slope, c1, phi(v), float(np.max(np.abs(d))))
 
         def accept(vn, a, ref=ref):
-            return _acceptable(prob, obj, vn, a, ref)
+            return _acceptable(prob, obj, vn, a, ref, residual)
 
         a = amax
         vn = v + a * d
         ok = accept(vn, a)
         if not ok and block < 0:
             # second-order correction: the constraints' curvature spoils the full step
-            ct = prob.residual(vn)
+            ct = residual(vn)
             if np.all(np.isfinite(ct)):
                 dc = np.zeros(n)
                 dc[free] = -np.linalg.lstsq(JF, ct, rcond=None)[0]
@@ -792,13 +893,14 @@ def _newton_kkt(prob: _Problem, obj: _Objective, v0: np.ndarray, known=(),
     return stationary
 
 
-def _acceptable(prob: _Problem, obj: _Objective, vn: np.ndarray, a: float, ref) -> bool:
+def _acceptable(prob: _Problem, obj: _Objective, vn: np.ndarray, a: float, ref,
+                residual=None) -> bool:
     """Step test: the l1 merit decreases enough, or (a filter step) the residual drops clearly
     while the objective stays near."""
     nu, psi0, slope, c1, phi0, dmax = ref
     if vn[1] ** 2 + vn[2] ** 2 >= 0.995:
         return False
-    cn = prob.residual(vn)
+    cn = (residual or prob.residual)(vn)
     if not np.all(np.isfinite(cn)):
         return False
     c1n = float(np.sum(np.abs(cn)))
@@ -830,19 +932,25 @@ def _polish_ratio(prob: _Problem, v: np.ndarray, ratio: np.ndarray) -> tuple[np.
         if not np.all(np.isfinite(Ju)):
             break
         du = np.linalg.lstsq(Ju, -r, rcond=None)[0]
-        step = 1.0
-        for _ in range(20):
-            un = u + step * du
-            vn = build(un)
-            if vn[1] ** 2 + vn[2] ** 2 < 0.999 and un[3] > 0:
-                rn = float(np.max(np.abs(prob.residual(vn))))
-                if rn < res:
-                    break
-            step *= 0.5
-        else:
+        # backtracking: the first of the steps 1, 1/2, .. 2^-19 that reduces the residual,
+        # every trial step evaluated in one batched call
+        UN = u + _HALVINGS[:, None] * du
+        VN = np.empty((UN.shape[0], 3 + ratio.size))
+        VN[:, :3] = UN[:, :3]
+        VN[:, 3:] = ratio * UN[:, 3:4]
+        ok = (VN[:, 1] ** 2 + VN[:, 2] ** 2 < 0.999) & (UN[:, 3] > 0)
+        if not np.any(ok):
+            break
+        rn = np.full(UN.shape[0], np.inf)
+        rn[ok] = np.max(np.abs(prob.residual(VN[ok])), axis=1)
+        better = np.flatnonzero(rn < res)
+        if not better.size:
             break  # no step reduces the residual: converged to rounding, or stuck
-        u = un
+        u = UN[better[0]]
     return best
+
+
+_HALVINGS = 0.5 ** np.arange(20)
 
 
 def _make(veh, failed, ratio, found, reason, z=None, residual=math.inf, **extra):
@@ -977,27 +1085,31 @@ def solve(veh: Vehicle, failed=(), thrust_ratio: dict | None = None, hint=None,
             P, F, merit = _scan(prob, A, r)
             # the static hover with these ratios, when they allow one
             add(_polish_ratio(prob, np.r_[0.0, 0.0, 0.0, r], r)[0])
-            for i in _pick_starts(P, merit, _STARTS_PER_SENSE):
-                if rule == "static-only":
-                    break
-                add(_polish_ratio(prob, _refine(prob, A, P[i], r), r)[0])
+            picked = [] if rule == "static-only" else _pick_starts(P, merit,
+                                                                    _STARTS_PER_SENSE)
+            for v0 in _refine_many(prob, A, [P[i] for i in picked], r):
+                add(_polish_ratio(prob, v0, r)[0])
             found = [(c, v) for c, v in found if c.kind == "spinning" or rule != "static-only"]
             # a ratio solution at w = 0 is the static hover
             found = [(_as_static(c, v, prob, weights, have_d), v) for c, v in found]
         else:
             if authority.static_hover:
-                add(_static(prob, obj))
+                add(_static(prob, obj, (r0, A)))
             settled = (rule == "prefer-static" and authority.positive
                        and any(c.kind == "static" for c, _ in found))
             if rule != "static-only" and (complete or not settled):
                 P, F, merit = _scan(prob, A, None)
                 starts: list[np.ndarray] = []
                 slowest = float(_SCAN_SPIN_RAD_S[0] / prob.w_s)
-                for i in _pick_starts(P, merit, _STARTS_PER_SENSE):
+                picked = _pick_starts(P, merit, _STARTS_PER_SENSE)
+                at_slowest = [abs(P[i][0]) <= slowest * (1 + 1e-12) for i in picked]
+                refined = iter(_refine_many(prob, A, [P[i] for i, sl in
+                                                      zip(picked, at_slowest, strict=True)
+                                                      if not sl], None))
+                for i, sl in zip(picked, at_slowest, strict=True):
                     # a start at the slowest spin of the grid heads for the static hover:
                     # Newton from the grid point itself
-                    v0 = (np.r_[P[i], F[i]] if abs(P[i][0]) <= slowest * (1 + 1e-12)
-                          else _refine(prob, A, P[i], None))
+                    v0 = np.r_[P[i], F[i]] if sl else next(refined)
                     if any(np.max(np.abs(v0[:3] - u[:3])) < 0.05 for u in starts):
                         continue  # refined into the basin of an earlier start
                     starts.append(v0)

@@ -235,7 +235,8 @@ def _case(veh: Vehicle, failed, ratio) -> list:
     nan = math.nan
     if not eq.found:
         return [False, nan, nan, False, nan, nan, nan, nan]
-    ctl = C.design_control(veh, eq)
+    # the maps show no robustness figure (lag and channel margins): not computed per point
+    ctl = C.design_control(veh, eq, with_robustness=False)
     c = veh.design.control
     risk = R.saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
                              c.disturbance_time_constant_s)

@@ -162,7 +162,9 @@ def wheel_curve(veh: Vehicle, failed=(), thrust_ratio=None, h_grid=None) -> Whee
     # solve outward from h = 0 so each point warm-starts from its neighbour
     i0 = int(np.argmin(np.abs(h_grid)))
     base = veh.with_wheel_momentum(h_grid[i0])
-    eq0 = eq_mod.solve(base, failed, thrust_ratio)
+    # only the chosen point enters the curve: no spinning candidates where the rule has
+    # already chosen the static hover (``complete=False``, the same point)
+    eq0 = eq_mod.solve(base, failed, thrust_ratio, complete=False)
     c0 = ctl_mod.design_control(base, eq0, with_robustness=False)
     K0 = c0.K
     results = {i0: (eq0, c0)}
@@ -171,7 +173,7 @@ def wheel_curve(veh: Vehicle, failed=(), thrust_ratio=None, h_grid=None) -> Whee
         for i in order:
             vh = veh.with_wheel_momentum(h_grid[i])
             hint = (prev.spin_rate_rad_s, prev.n_bar) if prev.found else None
-            eq = eq_mod.solve(vh, failed, thrust_ratio, hint=hint)
+            eq = eq_mod.solve(vh, failed, thrust_ratio, hint=hint, complete=False)
             results[i] = (eq, ctl_mod.design_control(vh, eq, with_robustness=False))
             prev = eq if eq.found else prev
     for i, (eq, c) in results.items():

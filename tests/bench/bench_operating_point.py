@@ -46,11 +46,17 @@ from kit.models import ring_design  # noqa: E402
 ROOT = HERE.parents[1]
 
 
+def _legacy_solve(veh, failed=(), thrust_ratio=None, hint=None, rule=None, complete=True):
+    """The old search under the new call (it has no rule and always searches everything)."""
+    del rule, complete
+    return legacy.solve(veh, failed, thrust_ratio, hint=hint)
+
+
 @contextlib.contextmanager
 def old_code():
     """Swap in the old search and controllability distance (module attributes)."""
     saved = (E.solve, C.controllability)
-    E.solve, C.controllability = legacy.solve, legacy.controllability_old
+    E.solve, C.controllability = _legacy_solve, legacy.controllability_old
     try:
         yield
     finally:

@@ -124,3 +124,12 @@ def test_crash_floor_is_a_review_field():
     doc["review"]["crash_height_loss_m"] = -1.0
     with pytest.raises(DesignError, match=r"review.crash_height_loss_m"):
         from_dict(doc)
+
+
+def test_zero_detection_delay_flies(quad):
+    # the empty segment between the failure and the switch is skipped; the samples still map
+    # to their controllers (the recovery law from the failure on)
+    r = SIM.simulate_failure(quad, ("r0",), detect_delay_s=0.0, t_end=3.0)
+    late = SIM.simulate_failure(quad, ("r0",), detect_delay_s=0.05, t_end=3.0)
+    assert r.t_switch_s == r.t_fail_s and r.solver_ok and not r.crashed
+    assert r.transient["peak_tilt_deg"] <= late.transient["peak_tilt_deg"] + 1e-6

@@ -1055,7 +1055,7 @@ def _flown_result(veh, flight, segs, failed, t_fail, t_sw, tau, eq, law, t, Y, s
     quat = Y[:, 6:10] / np.linalg.norm(Y[:, 6:10], axis=1, keepdims=True)
     omega = Y[:, 10:13]
     n = up_in_body(quat)
-    used = [s for s in segs if s.t1 > s.t0]
+    used = segs  # _fly numbers the samples by the segment's place in segs (empty ones too)
     C_, RAW, X, ND, W = [], [], [], [], []
     for k, y in zip(seg_idx, Y, strict=True):
         c, raw, x, w, nd = flight.command(used[k], y)

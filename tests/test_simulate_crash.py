@@ -133,3 +133,12 @@ def test_zero_detection_delay_flies(quad):
     late = SIM.simulate_failure(quad, ("r0",), detect_delay_s=0.05, t_end=3.0)
     assert r.t_switch_s == r.t_fail_s and r.solver_ok and not r.crashed
     assert r.transient["peak_tilt_deg"] <= late.transient["peak_tilt_deg"] + 1e-6
+
+
+def test_infinite_lag_margin_passes_its_check():
+    # a loop stable at every lag searched has lag margin inf: at least any limit; nan fails
+    assert CH.at_least("lag margin", math.inf, 0.03, "s").passed
+    assert CH.margin(CH.at_least("lag margin", math.inf, 0.03, "s")) == math.inf
+    assert not CH.at_least("lag margin", math.nan, 0.03, "s").passed
+    assert not CH.at_least("lag margin", -math.inf, 0.03, "s").passed
+    assert not CH.at_most("height lost in recovery", math.inf, 5.0, "m").passed

@@ -39,7 +39,9 @@ class Check:
 
 
 def at_least(name, value, limit, unit="", case="") -> Check:
-    ok = value is not None and math.isfinite(value) and value >= limit
+    # +inf is at least any limit (e.g. a lag margin beyond the search: stable at every lag
+    # searched); nan and None fail
+    ok = value is not None and not math.isnan(value) and value >= limit
     return Check(name, value, limit, bool(ok), unit, case, ">=")
 
 
@@ -97,7 +99,7 @@ def margin(c: Check) -> float:
     if c.value is None or c.limit is None:
         return -math.inf
     v, lim = float(c.value), float(c.limit)
-    if not (math.isfinite(v) and math.isfinite(lim)):
+    if math.isnan(v) or not math.isfinite(lim):
         return -math.inf
     diff = v - lim if c.relation == ">=" else lim - v
     return diff / abs(lim) if lim != 0 else diff

@@ -644,7 +644,8 @@ def _spin_up_point(veh: Vehicle, eq: E.Equilibrium, frac: float) -> E.Equilibriu
                                spin_rate_rad_s=float(w))
 
 
-def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> _Schedule:
+def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl,
+                      tau_s: np.ndarray | None = None) -> _Schedule:
     """Gain schedule of the recovery law over the spin-up, ending at the relaxed hover ``eq``.
 
     One LQR (the design's weights and motor lag) per point of :data:`SCHEDULE_FRACTIONS`
@@ -660,6 +661,9 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
         Relaxed-hover equilibrium of the failure set.
     ctl : LinearControl
         Its LQR.
+    tau_s : ndarray (N,) or None
+        Motor time constants of every rotor the schedule's LQRs assume, in s (None: the
+        design's).
     """
     n = veh.n
     if abs(eq.spin_rate_rad_s) < 1e-9:
@@ -671,7 +675,8 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
             # a Riccati solution scipy has to perturb is not one to fly
             warnings.simplefilter("error", RuntimeWarning)
             try:
-                c = C.design_control(veh, op, with_robustness=False)
+                c = C.design_control(veh, op, with_robustness=False,
+                                     tau_s=None if tau_s is None else tau_s[op.working])
             except RuntimeWarning:
                 continue
         if c.K is not None:
@@ -1026,7 +1031,7 @@ def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,
         alive = veh.working_mask(failed)
         t_fail = min(t_fail, t_end)
         t_sw = min(t_sw, t_end)
-        law1 = recovery_schedule(veh, eq1, ctl1) if recovery == "scheduled" else _single(
+        law1 = recovery_schedule(veh, eq1, ctl1, tau) if recovery == "scheduled" else _single(
             eq1, ctl1, veh.n)
         segs = [_segment(veh, 0.0, t_fail, law0, all_alive),
                 _segment(veh, t_fail, t_sw, law0, alive), _segment(veh, t_sw, t_end, law1, alive)]

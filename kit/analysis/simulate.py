@@ -147,9 +147,10 @@ class _Phase:
 
 
 def _controller(eq: E.Equilibrium, veh: Vehicle, what: str) -> C.LinearControl:
+    """The four-state LQR of ``eq`` (no motor lag states, whatever the design's lag)."""
     if not eq.found:
         raise EquilibriumNotFound(f"{what}: {eq.reason}")
-    ctl = C.design_control(veh, eq)
+    ctl = C.design_control(veh, eq, tau_s=np.zeros(int(np.sum(eq.working))))
     if ctl.K is None:
         raise EquilibriumNotFound(f"{what}: no stabilising LQR ({ctl.note})")
     return ctl
@@ -1191,7 +1192,8 @@ def simulate_about(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl | None 
     eq : Equilibrium
         The equilibrium (any failure set) to start from and to hold.
     ctl : LinearControl or None
-        Its LQR (None: :func:`kit.analysis.control.design_control`).
+        Its four-state LQR (None: :func:`kit.analysis.control.design_control` without motor
+        lag); a law with motor lag states is refused (ValueError).
     t_end : float
         End of the run, in s.
     initial_disturbance : sequence of 4 floats
@@ -1212,6 +1214,9 @@ def simulate_about(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl | None 
         ctl = _controller(eq, veh, label)
     elif ctl.K is None:
         raise EquilibriumNotFound(f"{label}: no stabilising LQR ({ctl.note})")
+    elif ctl.has_motor_lag:
+        raise ValueError(f"{label}: simulate_about flies the four-state law; a law with motor "
+                         "lag states flies in simulate_failure(..., outer_loop=False)")
     law = _Law.of(eq, ctl)
     omega0, n0 = _start(eq, initial_disturbance)
     phases = [_Phase(0.0, t_end, law, eq.working.copy())]

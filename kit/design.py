@@ -145,6 +145,8 @@ class Review:
     min_lag_margin_s: float = 0.03
     max_height_loss_m: float = 5.0
     max_tilt_during_recovery_deg: float = 60.0
+    #: Height lost at which a flown recovery counts as crashed and its integration stops, in m.
+    crash_height_loss_m: float = 20.0
     defaulted: tuple[str, ...] = ()
 
 

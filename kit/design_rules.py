@@ -41,6 +41,7 @@ REVIEW_DEFAULTS: dict[str, Any] = {
     "min_lag_margin_s": 0.03,
     "max_height_loss_m": 5.0,
     "max_tilt_during_recovery_deg": 60.0,
+    "crash_height_loss_m": 20.0,
 }
 #: Time from a rotor failure to the recovery law taking over, s (common practice, no source).
 DEFAULT_FAILURE_DETECTION_DELAY_S = 0.05
@@ -189,6 +190,7 @@ _FIELDS: dict[str, dict[str, tuple[str, bool]]] = {
         "min_lag_margin_s": ("pos", False),
         "max_height_loss_m": ("pos", False),
         "max_tilt_during_recovery_deg": ("pos", False),
+        "crash_height_loss_m": ("pos", False),
     },
     "failure_case": {"failed": ("strlist", True), "thrust_ratio": ("ratio_table", False)},
 }

@@ -74,7 +74,8 @@ def test_survey_quad_fields_normalised():
     assert d.failure_cases[1].failed == ("front_left",)
     # the file sets every threshold it knew of; those added later take their stated defaults
     assert set(d.review.defaulted) == {"min_damping_ratio", "min_lag_margin_s",
-                                       "max_height_loss_m", "max_tilt_during_recovery_deg"}
+                                       "max_height_loss_m", "max_tilt_during_recovery_deg",
+                                       "crash_height_loss_m"}
     assert d.gravity_m_s2 == 9.80665
 
 

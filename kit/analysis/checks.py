@@ -6,7 +6,7 @@ Thresholds come from the design's ``[review]`` table (defaults: common practice,
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 #: Smallest thrust margin (1 - f / f_max) of the busiest rotor in a failure case (common
 #: practice, no source): room for the controller to act.
@@ -24,6 +24,8 @@ class Check:
     unit: str = ""
     case: str = ""
     relation: str = ""
+    #: Why the value is what it is, when the figure alone does not say (e.g. a crash).
+    note: str = ""
 
     def to_dict(self) -> dict:
         def clean(v):
@@ -33,11 +35,13 @@ class Check:
 
         return {"name": self.name, "value": clean(self.value), "limit": clean(self.limit),
                 "passed": bool(self.passed), "unit": self.unit, "case": self.case,
-                "relation": self.relation}
+                "relation": self.relation, "note": self.note}
 
 
 def at_least(name, value, limit, unit="", case="") -> Check:
-    ok = value is not None and math.isfinite(value) and value >= limit
+    # +inf is at least any limit (e.g. a lag margin beyond the search: stable at every lag
+    # searched); nan and None fail
+    ok = value is not None and not math.isnan(value) and value >= limit
     return Check(name, value, limit, bool(ok), unit, case, ">=")
 
 
@@ -95,7 +99,7 @@ def margin(c: Check) -> float:
     if c.value is None or c.limit is None:
         return -math.inf
     v, lim = float(c.value), float(c.limit)
-    if not (math.isfinite(v) and math.isfinite(lim)):
+    if math.isnan(v) or not math.isfinite(lim):
         return -math.inf
     diff = v - lim if c.relation == ">=" else lim - v
     return diff / abs(lim) if lim != 0 else diff
@@ -148,14 +152,23 @@ def robustness_checks(ctl, review, case="") -> list[Check]:
 
 
 def transient_checks(sim, review, case="") -> list[Check]:
-    """Checks of the simulated recovery from a failure (a :class:`SimulationResult`)."""
+    """Checks of the simulated recovery from a failure (a :class:`SimulationResult`).
+
+    A run that crashed (``sim.crashed``: it sank ``[review] crash_height_loss_m`` and its
+    integration stopped there) fails "recovery converged" with the crash as its note; its
+    height lost and peak tilt are those up to the crash.
+    """
     tr = sim.transient
+    crashed = bool(getattr(sim, "crashed", False))
+    note = sim.message if crashed else ""
+    conv = is_true("recovery converged (tilt, rates, yaw rate, position, height, velocity)",
+                   sim.converged and not crashed, case)
+    lost = at_most("height lost in recovery", tr["height_lost_m"], review.max_height_loss_m,
+                   "m", case)
     return [
-        is_true("recovery converged (tilt, rates, yaw rate, position, height, velocity)",
-                sim.converged, case),
+        replace(conv, note=note),
         is_true("never inverted during recovery", not tr["inverted"], case),
-        at_most("height lost in recovery", tr["height_lost_m"], review.max_height_loss_m, "m",
-                case),
+        replace(lost, note=note),
         at_most("peak tilt during recovery", tr["peak_tilt_deg"],
                 review.max_tilt_during_recovery_deg, "deg", case),
     ]

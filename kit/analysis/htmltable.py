@@ -135,6 +135,7 @@ def wheel_html(w) -> str:
 
 
 def checks_html(checks) -> str:
-    rows = [(c.case or "design", c.name, ("raw", num(c.value)), c.relation,
+    rows = [(c.case or "design", c.name + (f" ({c.note})" if c.note else ""),
+             ("raw", num(c.value)), c.relation,
              ("raw", num(c.limit)), c.unit, verdict(c.passed)) for c in checks]
     return table(["case", "check", "value", "", "limit", "unit", "result"], rows, "Design checks")

@@ -271,7 +271,8 @@ def transients_html(cases) -> str:
             rows.append((c.eq.label, "not simulated", c.failed_checks, *[None] * 7))
             continue
         tr = c.transient.transient
-        rows.append((c.eq.label, c.transient.converged, c.failed_checks,
+        rows.append((c.eq.label, c.transient.converged if not c.transient.crashed
+                     else f"no: {c.transient.message}", c.failed_checks,
                      tr["peak_tilt_deg"],
                      f"{tr['least_n_z']:.3g}" + (" (inverted)" if tr["inverted"] else ""),
                      tr["height_lost_m"], tr["largest_horizontal_excursion_m"],
@@ -466,7 +467,8 @@ class DesignReport:
         lines.append(f"  checks: {len(self.checks) - len(failed)} of {len(self.checks)} passed")
         for c in failed:
             lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
-                         f"(limit {c.relation} {num(c.limit)} {c.unit})")
+                         f"(limit {c.relation} {num(c.limit)} {c.unit})"
+                         + (f": {c.note}" if c.note else ""))
         sims = [c for c in self.worst_first if c.transient is not None]
         if sims:
             lines.append("  recovery from each failure, worst first:")
@@ -478,7 +480,8 @@ class DesignReport:
                 f", peak tilt {tr['peak_tilt_deg']:.3g} deg"
                 f"{' (INVERTED)' if tr['inverted'] else ''}, height lost "
                 f"{tr['height_lost_m']:.3g} m, settle "
-                + (f"{settle:.3g} s" if math.isfinite(settle) else "never"))
+                + (f"{settle:.3g} s" if math.isfinite(settle) else "never")
+                + (f"; {c.transient.message}" if c.transient.crashed else ""))
         if self.gust is not None:
             g = self.gust
             lines.append(f"  gust Monte-Carlo ({g.case}): nonlinear/linear crossing rate "

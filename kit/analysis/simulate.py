@@ -26,8 +26,10 @@ the thrust direction ``d`` and the collective; the attitude LQR acts on
 measured spin rate takes over (:func:`recovery_schedule`). A run converges only when tilt, body
 rates, yaw rate, position, height and velocity all settle (module tolerances
 ``TILT_TOL`` .. ``SPEED_TOL_M_S``); its horizon is ``HORIZON_TIME_CONSTANTS`` times the longest of
-the slowest closed-loop pole and the spin-up time constant ``J_zz / gamma_z``.
-:func:`simulate_about` (no outer loop, one LQR) is the linear-against-nonlinear comparison.
+the slowest closed-loop pole and the spin-up time constant ``J_zz / gamma_z``; a run whose
+vehicle sinks ``[review] crash_height_loss_m`` below its start has crashed and stops there
+(:func:`crash_event`). :func:`simulate_about` (no outer loop, one LQR) is the
+linear-against-nonlinear comparison.
 
 References
 ----------
@@ -145,9 +147,10 @@ class _Phase:
 
 
 def _controller(eq: E.Equilibrium, veh: Vehicle, what: str) -> C.LinearControl:
+    """The four-state LQR of ``eq`` (no motor lag states, whatever the design's lag)."""
     if not eq.found:
         raise EquilibriumNotFound(f"{what}: {eq.reason}")
-    ctl = C.design_control(veh, eq)
+    ctl = C.design_control(veh, eq, tau_s=np.zeros(int(np.sum(eq.working))))
     if ctl.K is None:
         raise EquilibriumNotFound(f"{what}: no stabilising LQR ({ctl.note})")
     return ctl
@@ -175,6 +178,7 @@ def transient_rows(tr: dict) -> list[tuple[str, object]]:
         ("peak body rates p, q, r (rad/s)",
          ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])),
         ("not settled", ", ".join(tr["not_settled"]) or "-"),
+        ("crashed", f"yes, at t = {tr['crash_time_s']:.3g} s" if tr.get("crashed") else "no"),
     ]
 
 
@@ -230,6 +234,13 @@ class SimulationResult:
         Clipped thrust commands, in N.
     spin_about_command_rad_s : ndarray (T,) or None
         Measured spin rate about the commanded thrust direction, in rad/s.
+    crashed : bool
+        The run stopped at the crash event (:func:`crash_event`): the vehicle sank
+        ``crash_height_loss_m`` below its start; ``message`` says when. Never converged.
+    crash_time_s : float
+        Time of the crash event, in s (nan: no crash).
+    crash_height_loss_m : float
+        Crash floor of the run, in m below the start (inf: none).
     """
 
     names: tuple[str, ...]
@@ -260,6 +271,9 @@ class SimulationResult:
     outer_loop: bool = False
     command_n: np.ndarray | None = None
     spin_about_command_rad_s: np.ndarray | None = None
+    crashed: bool = False
+    crash_time_s: float = math.nan
+    crash_height_loss_m: float = math.inf
 
     @property
     def altitude_m(self) -> np.ndarray:
@@ -347,6 +361,9 @@ class SimulationResult:
             {k: v for k, v in self.tolerances.items() if k != "not_settled"},
             "transient": None if self.transient is None else {
                 k: (num(v) if isinstance(v, float) else v) for k, v in self.transient.items()},
+            "crashed": self.crashed,
+            "crash_time_s": num(self.crash_time_s),
+            "crash_height_loss_m": num(self.crash_height_loss_m),
         }
 
     def _repr_html_(self) -> str:
@@ -357,6 +374,8 @@ class SimulationResult:
             ("controller switch at (s)", d["t_switch_s"] if d["t_switch_s"] is not None else "-"),
             ("motor lag (s)", d["motor_lag_s"] if d["motor_lag_s"] is not None else "none"),
             ("converged", "yes" if self.converged else "NO"),
+            ("ended", self.message if self.crashed or not self.solver_ok
+             else "at the horizon"),
             ("final spin rate (rad/s)", d["final_spin_rate_rad_s"]),
             ("equilibrium spin rate (rad/s)", d["equilibrium_spin_rate_rad_s"]),
             ("peak body rates p, q, r (rad/s)",
@@ -626,7 +645,8 @@ def _spin_up_point(veh: Vehicle, eq: E.Equilibrium, frac: float) -> E.Equilibriu
                                spin_rate_rad_s=float(w))
 
 
-def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> _Schedule:
+def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl,
+                      tau_s: np.ndarray | None = None) -> _Schedule:
     """Gain schedule of the recovery law over the spin-up, ending at the relaxed hover ``eq``.
 
     One LQR (the design's weights and motor lag) per point of :data:`SCHEDULE_FRACTIONS`
@@ -642,6 +662,9 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
         Relaxed-hover equilibrium of the failure set.
     ctl : LinearControl
         Its LQR.
+    tau_s : ndarray (N,) or None
+        Motor time constants of every rotor the schedule's LQRs assume, in s (None: the
+        design's).
     """
     n = veh.n
     if abs(eq.spin_rate_rad_s) < 1e-9:
@@ -653,7 +676,8 @@ def recovery_schedule(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl) -> 
             # a Riccati solution scipy has to perturb is not one to fly
             warnings.simplefilter("error", RuntimeWarning)
             try:
-                c = C.design_control(veh, op, with_robustness=False)
+                c = C.design_control(veh, op, with_robustness=False,
+                                     tau_s=None if tau_s is None else tau_s[op.working])
             except RuntimeWarning:
                 continue
         if c.K is not None:
@@ -784,30 +808,67 @@ class _Flight:
         return rhs
 
 
-def _fly(flight: _Flight, segments: list[_Segment], omega0, n0, f0, rtol, max_step, sample_s):
+def crash_event(crash_height_loss_m: float):
+    """Terminal ``solve_ivp`` event: the centre of mass has sunk ``crash_height_loss_m``
+    below its start height (``z = 0``); zero at ``z = -crash_height_loss_m``, crossing
+    downwards.
+
+    Parameters
+    ----------
+    crash_height_loss_m : float
+        The crash floor, in m below the start height.
+    """
+    floor = -float(crash_height_loss_m)
+
+    def crashed(t, y):
+        return y[2] - floor
+
+    crashed.terminal = True
+    crashed.direction = -1.0
+    return crashed
+
+
+def _fly(flight: _Flight, segments: list[_Segment], omega0, n0, f0, rtol, max_step, sample_s,
+         crash_height_loss_m: float = math.inf):
+    """Integrate segment by segment; stop at the crash event (:func:`crash_event`).
+
+    Returns the samples, their segment index, the solver status and message, the number of
+    right-hand-side evaluations and the crash time (nan: no crash). A crashed run ends with
+    the sample at the event itself.
+    """
     q0 = quat_from_up(n0)
     y = np.r_[np.zeros(6), q0, omega0, f0 if flight.any_lag else []]
     ts, ys, segs = [], [], []
     ok, message, nfev = True, "ok", 0
+    t_crash = math.nan
+    events = crash_event(crash_height_loss_m) if math.isfinite(crash_height_loss_m) else None
     for k, seg in enumerate(segments):
         if seg.t1 <= seg.t0:
             continue
         m = max(1, round((seg.t1 - seg.t0) / sample_s))
         t_eval = np.linspace(seg.t0, seg.t1, m + 1)
         sol = solve_ivp(flight.rhs_for(seg), (seg.t0, seg.t1), y, method="RK45", t_eval=t_eval,
-                        rtol=rtol, atol=rtol * 1e-3, max_step=max_step)
+                        rtol=rtol, atol=rtol * 1e-3, max_step=max_step, events=events)
         nfev += sol.nfev
-        if sol.status != 0:
+        if sol.status == -1:
             ok, message = False, sol.message
         start = 0 if not ts else 1
-        ts.append(sol.t[start:])
-        ys.append(sol.y.T[start:])
-        segs.append(np.full(sol.t[start:].size, k))
-        if not ok or sol.y.shape[1] == 0:
+        tk, yk = sol.t[start:], sol.y.T[start:]
+        if sol.status == 1:  # the crash event: keep the state where the flight ended
+            t_crash = float(sol.t_events[0][0])
+            yc = sol.y_events[0][0]
+            if tk.size and tk[-1] >= t_crash:
+                tk, yk = tk[:-1], yk[:-1]
+            tk, yk = np.r_[tk, t_crash], np.vstack([yk, yc])
+        ts.append(tk)
+        ys.append(yk)
+        segs.append(np.full(tk.size, k))
+        if not ok or sol.status == 1 or sol.y.shape[1] == 0:
             break
         y = sol.y.T[-1].copy()
         y[6:10] /= np.linalg.norm(y[6:10])
-    return np.concatenate(ts), np.vstack(ys), np.concatenate(segs), ok, message, nfev
+    return (np.concatenate(ts), np.vstack(ys), np.concatenate(segs), ok, message, nfev,
+            t_crash)
 
 
 def horizon_s(veh: Vehicle, ctl_hover: C.LinearControl, ctl_fail: C.LinearControl | None,
@@ -847,7 +908,8 @@ def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,
                      recovery: str = "scheduled", rtol: float = FLOWN_RTOL,
                      max_step: float = FLOWN_MAX_STEP_S, sample_s: float | None = None,
                      rate_tol_rad_s: float = RATE_TOL_RAD_S,
-                     n_tol: float = N_TOL) -> SimulationResult:
+                     n_tol: float = N_TOL,
+                     crash_height_loss_m: float | None = None) -> SimulationResult:
     """Hover, lose the rotors ``failed`` at ``t_fail``, recover after the detection delay.
 
     The controller (DESIGN.md, "Control architecture in the nonlinear simulation"):
@@ -871,6 +933,13 @@ def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,
 
     ``outer_loop=False, recovery="switch"`` with no lag is the earlier simulation (no height
     or position control: the vehicle sinks and drifts, and the run is then not converged).
+
+    The flight ends early when the vehicle has crashed: a terminal event stops the integration
+    when the centre of mass has sunk ``crash_height_loss_m`` below its start height
+    (:func:`crash_event`; default the design's ``[review] crash_height_loss_m``, 20 m, common
+    practice, no source). The result is then ``crashed``, never converged, its ``message``
+    says "crashed at t = ... s after falling ... m", and its last sample is the state at the
+    event.
 
     Parameters
     ----------
@@ -906,6 +975,9 @@ def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,
     rate_tol_rad_s, n_tol : float
         Kept for callers of the earlier signature; the convergence tolerances are the module's
         ``TILT_TOL``, ``RATE_FLOOR_RAD_S`` .. ``SPEED_TOL_M_S``.
+    crash_height_loss_m : float or None
+        Height below the start at which the run counts as crashed and stops, in m (None: the
+        design's ``[review] crash_height_loss_m``; ``math.inf``: never stop early).
 
     Returns
     -------
@@ -960,16 +1032,18 @@ def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,
         alive = veh.working_mask(failed)
         t_fail = min(t_fail, t_end)
         t_sw = min(t_sw, t_end)
-        law1 = recovery_schedule(veh, eq1, ctl1) if recovery == "scheduled" else _single(
+        law1 = recovery_schedule(veh, eq1, ctl1, tau) if recovery == "scheduled" else _single(
             eq1, ctl1, veh.n)
         segs = [_segment(veh, 0.0, t_fail, law0, all_alive),
                 _segment(veh, t_fail, t_sw, law0, alive), _segment(veh, t_sw, t_end, law1, alive)]
         target_eq, target_law, t_fail_v, t_sw_v = eq1, law1, t_fail, t_sw
     f0 = np.nan_to_num(eq0.thrust_n)
-    t, Y, seg_idx, ok, message, nfev = _fly(flight, segs, omega0, n0, f0, rtol, max_step,
-                                           sample_s)
+    floor = (veh.design.review.crash_height_loss_m if crash_height_loss_m is None
+             else float(crash_height_loss_m))
+    t, Y, seg_idx, ok, message, nfev, t_crash = _fly(flight, segs, omega0, n0, f0, rtol,
+                                                     max_step, sample_s, floor)
     return _flown_result(veh, flight, segs, failed, t_fail_v, t_sw_v, tau, target_eq,
-                         target_law, t, Y, seg_idx, ok, message, nfev, outer)
+                         target_law, t, Y, seg_idx, ok, message, nfev, outer, t_crash, floor)
 
 
 def _controller_lag(eq: E.Equilibrium, veh: Vehicle, what: str, tau: np.ndarray):
@@ -982,12 +1056,12 @@ def _controller_lag(eq: E.Equilibrium, veh: Vehicle, what: str, tau: np.ndarray)
 
 
 def _flown_result(veh, flight, segs, failed, t_fail, t_sw, tau, eq, law, t, Y, seg_idx, ok,
-                  message, nfev, outer) -> SimulationResult:
+                  message, nfev, outer, t_crash=math.nan, floor=math.inf) -> SimulationResult:
     N = veh.n
     quat = Y[:, 6:10] / np.linalg.norm(Y[:, 6:10], axis=1, keepdims=True)
     omega = Y[:, 10:13]
     n = up_in_body(quat)
-    used = [s for s in segs if s.t1 > s.t0]
+    used = segs  # _fly numbers the samples by the segment's place in segs (empty ones too)
     C_, RAW, X, ND, W = [], [], [], [], []
     for k, y in zip(seg_idx, Y, strict=True):
         c, raw, x, w, nd = flight.command(used[k], y)
@@ -1007,7 +1081,7 @@ def _flown_result(veh, flight, segs, failed, t_fail, t_sw, tau, eq, law, t, Y, s
                                 float(eq.circle_radius_m) if eq.found else 0.0, ref)
     t0 = t_fail if math.isfinite(t_fail) else 0.0
     return _assemble(veh, failed, t_fail, t_sw, tau, t, Y, quat, omega, n, F, cmd, raw, alive_s,
-                     eq, law, dev, bad, tol, ok, message, nfev, t0, outer, W)
+                     eq, law, dev, bad, tol, ok, message, nfev, t0, outer, W, t_crash, floor)
 
 
 def _transient_flags(pos, vel, dev, spin, w_bar, circle_m, ref):
@@ -1029,12 +1103,16 @@ def _transient_flags(pos, vel, dev, spin, w_bar, circle_m, ref):
 
 
 def _assemble(veh, failed, t_fail, t_sw, tau, t, Y, quat, omega, n, F, cmd, raw, alive_s, eq,
-              law, dev, bad, tol, ok, message, nfev, t0, outer, spin):
+              law, dev, bad, tol, ok, message, nfev, t0, outer, spin, t_crash=math.nan,
+              floor=math.inf):
     last = t >= t[-1] - CONVERGENCE_WINDOW_S - 1e-12
     any_bad = np.zeros(t.size, bool)
     for v in bad.values():
         any_bad |= v
-    converged = bool(ok and not np.any(any_bad[last]))
+    crashed = math.isfinite(t_crash)
+    if crashed:
+        message = crash_message(t_crash, t0, float(Y[0, 2] - Y[-1, 2]), floor)
+    converged = bool(ok and not crashed and not np.any(any_bad[last]))
     after = t >= t0
     viol = np.flatnonzero(any_bad & after)
     if not converged:
@@ -1064,6 +1142,8 @@ def _assemble(veh, failed, t_fail, t_sw, tau, t, Y, quat, omega, n, F, cmd, raw,
         "peak_spin_rate_rad_s": float(np.max(np.abs(spin[a]))),
         "final_speed_m_s": float(np.linalg.norm(Y[-1, 3:6])),
         "not_settled": sorted(k for k, v in bad.items() if np.any(v[last])),
+        "crashed": crashed,
+        "crash_time_s": float(t_crash),
     }
     return SimulationResult(
         names=veh.names, failed=tuple(failed), t_fail_s=float(t_fail), t_switch_s=float(t_sw),
@@ -1074,8 +1154,28 @@ def _assemble(veh, failed, t_fail, t_sw, tau, t, Y, quat, omega, n, F, cmd, raw,
         deviation=dev, converged=converged, rate_tol_rad_s=float(tol["body_rates_rad_s"]),
         n_tol=float(tol["tilt"]), solver_ok=ok, message=message, n_rhs_evaluations=int(nfev),
         tolerances=tol, transient=summary, outer_loop=outer is not None,
-        command_n=cmd, spin_about_command_rad_s=spin,
+        command_n=cmd, spin_about_command_rad_s=spin, crashed=crashed,
+        crash_time_s=float(t_crash), crash_height_loss_m=float(floor),
     )
+
+
+def crash_message(t_crash_s: float, t_fail_s: float, fallen_m: float, floor_m: float) -> str:
+    """The reason a flown run ended early: ``crashed at t = ... s after falling ... m``.
+
+    Parameters
+    ----------
+    t_crash_s : float
+        Time of the crash event, in s.
+    t_fail_s : float
+        Time of the failure, in s.
+    fallen_m : float
+        Height lost at the crash, in m.
+    floor_m : float
+        The crash floor (``[review] crash_height_loss_m``), in m.
+    """
+    return (f"crashed at t = {t_crash_s:.3g} s ({t_crash_s - t_fail_s:.3g} s after the failure) "
+            f"after falling {fallen_m:.3g} m (crash floor {floor_m:g} m below the start, "
+            "[review] crash_height_loss_m)")
 
 
 def simulate_about(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl | None = None,
@@ -1092,7 +1192,8 @@ def simulate_about(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl | None 
     eq : Equilibrium
         The equilibrium (any failure set) to start from and to hold.
     ctl : LinearControl or None
-        Its LQR (None: :func:`kit.analysis.control.design_control`).
+        Its four-state LQR (None: :func:`kit.analysis.control.design_control` without motor
+        lag); a law with motor lag states is refused (ValueError).
     t_end : float
         End of the run, in s.
     initial_disturbance : sequence of 4 floats
@@ -1113,6 +1214,9 @@ def simulate_about(veh: Vehicle, eq: E.Equilibrium, ctl: C.LinearControl | None 
         ctl = _controller(eq, veh, label)
     elif ctl.K is None:
         raise EquilibriumNotFound(f"{label}: no stabilising LQR ({ctl.note})")
+    elif ctl.has_motor_lag:
+        raise ValueError(f"{label}: simulate_about flies the four-state law; a law with motor "
+                         "lag states flies in simulate_failure(..., outer_loop=False)")
     law = _Law.of(eq, ctl)
     omega0, n0 = _start(eq, initial_disturbance)
     phases = [_Phase(0.0, t_end, law, eq.working.copy())]

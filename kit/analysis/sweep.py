@@ -239,7 +239,8 @@ def _case(veh: Vehicle, failed, ratio) -> list:
     ctl = C.design_control(veh, eq, with_robustness=False)
     c = veh.design.control
     risk = R.saturation_risk(eq, ctl, c.disturbance_torque_psd_n2_m2_s,
-                             c.disturbance_time_constant_s)
+                             c.disturbance_time_constant_s,
+                             min_thrust_n=[r.min_thrust_n for r in veh.design.rotors])
     row = [True, float(eq.spin_rate_rad_s), float(eq.tilt_deg), bool(ctl.controllable),
            float(ctl.controllability_distance),
            float(ctl.h2_norm) if ctl.K is not None else nan,

@@ -67,7 +67,9 @@ def _compare(ch, folder, args):
 
 
 def _history(ch, folder, args):
-    kinds, out = fuzzing.run_history_case(ch, folder, args.time_limit_s)
+    kinds, out = fuzzing.run_history_case(
+        ch, folder, args.time_limit_s,
+        fuzzing.HISTORY_KINDS if args.slow_history else fuzzing.QUICK_HISTORY_KINDS)
     return kinds, [out]
 
 
@@ -93,6 +95,9 @@ def main(argv=None) -> int:
     ap.add_argument("--target", nargs="+", choices=TARGETS, default=["designs"])
     ap.add_argument("--time-limit-s", type=float, default=60.0,
                     help="wall time after which a command counts as a hang (default 60 s)")
+    ap.add_argument("--slow-history", action="store_true",
+                    help="history: also corrupt analysis caches (each makes the revision be "
+                         "analysed again, about a minute)")
     ap.add_argument("--no-analysis", action="store_true", help="designs: run check only")
     ap.add_argument("--show", type=int, default=5, help="examples printed per problem kind")
     args = ap.parse_args(argv)

@@ -620,7 +620,9 @@ def compare_pair(ch: Chooser, bases: Sequence[str] = COMPARE_BASES) -> tuple[dic
                 design["revision"] = ch.pick(NASTY_TEXT)
                 design["name"] = ch.pick(NASTY_TEXT)
         elif kind == "other_design":
-            new = demo_analysis(ch.pick(("wheel_quad", "survey_quad")))
+            new = demo_analysis(ch.pick(bases))
+            if isinstance(new.get("rotors"), list) and new["rotors"]:
+                del new["rotors"][ch.integer(0, len(new["rotors"]) - 1)]
         elif kind == "drop_cases" and isinstance(new.get("cases"), list) and new["cases"]:
             del new["cases"][ch.integer(0, len(new["cases"]) - 1):]
         elif kind == "drop_checks" and isinstance(old.get("checks"), list):
@@ -771,7 +773,7 @@ def option_cases(folder: Path) -> list[list[str]]:
         ["record", quad, "--previous", missing, "--out", str(folder / "rec3")],
         ["record", quad, "--previous", str(bad_json), "--out", str(folder / "rec4")],
         ["compare"], ["compare", quad], ["compare", missing, quad],
-        ["compare", quad, str(bad_json)], ["compare", quad, quad, "--erosion", "0"],
+        ["compare", str(bad_json), quad], ["compare", quad, quad, "--erosion", "0"],
         ["compare", quad, quad, "--erosion", "nan"], ["compare", quad, quad, "--erosion", "2"],
         ["compare", quad, quad, "--erosion", "x"], ["compare", quad, quad, "--html"],
         ["history"], ["history", missing], ["history", a_dir], ["history", quad],

@@ -378,8 +378,7 @@ def cmd_compare(args) -> int:
     new = load_revision(args.new)
     cmp = compare(old, new, erosion=args.erosion, strict=args.strict)
     if args.json:
-        json.dump(cmp.to_dict(), sys.stdout, indent=1)
-        sys.stdout.write("\n")
+        _dump_json(cmp.to_dict(), indent=1)  # never a NaN or Infinity token
     else:
         print(cmp.summary_text())
     if args.html:

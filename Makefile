@@ -61,9 +61,13 @@ test-fast: $(STAMP)
 bench: $(STAMP) chromium
 	@for b in tests/bench/bench_*.py; do echo "== $$b"; $(PY) $$b || exit 1; done
 
-## make fuzz: 10,000 mutated demo designs through check and analyze; prints the outcomes by kind
+## make fuzz: 10,000 mutated demo designs through check and analyze; 2,000 each of mutated stand
+## files, shorthand sections, design folders (history) and wrong options; 1,000 compared pairs of
+## analyses; prints the outcomes by kind
 fuzz: $(STAMP)
 	$(PY) tests/bench/fuzz_designs.py --cases 10000
+	$(PY) tests/bench/fuzz_designs.py --target stand shorthand history options --cases 2000
+	$(PY) tests/bench/fuzz_designs.py --target compare --cases 1000
 
 ## make lab: JupyterLab on 127.0.0.1 over the workbooks
 ## (no update check and no news fetch: the server never goes online; --allow-root when root)

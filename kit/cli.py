@@ -236,6 +236,9 @@ def cmd_gains(args) -> int:
         sys.stdout.write(text)
         return EXIT_OK
     out = Path(args.out)
+    if out.is_dir():
+        raise OptionError(f"--out: {str(out)!r} is a folder -> give a file name, e.g. "
+                          f"{str(out / 'gains.json')!r}")
     if out.exists() and not args.force:
         raise OptionError(f"--out: {out} exists; pass --force to replace it")
     write_atomic(out, text)
@@ -333,8 +336,13 @@ def cmd_sweep(args) -> int:
 
 
 def cmd_record(args) -> int:
+    from pathlib import Path
+
     from kit.record.render import record_design
 
+    if args.template_dir is not None and not Path(args.template_dir).is_dir():
+        raise OptionError(f"--template-dir: {args.template_dir!r} is not a folder -> give a "
+                          "folder of workbook templates (.ipynb), or leave it out for the kit's")
     previous = None
     if getattr(args, "previous", None):
         from kit.compare import load_revision
@@ -370,8 +378,7 @@ def cmd_compare(args) -> int:
     new = load_revision(args.new)
     cmp = compare(old, new, erosion=args.erosion, strict=args.strict)
     if args.json:
-        json.dump(cmp.to_dict(), sys.stdout, indent=1)
-        sys.stdout.write("\n")
+        _dump_json(cmp.to_dict(), indent=1)  # never a NaN or Infinity token
     else:
         print(cmp.summary_text())
     if args.html:
@@ -406,6 +413,78 @@ def cmd_new(args) -> int:
     return EXIT_OK
 
 
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line on stderr naming the option and the fix
+    (exit 2), never a usage block."""
+
+    def error(self, message: str):
+        print(f"{self.prog}: {_option_fix(message, self)}", file=sys.stderr)
+        sys.exit(EXIT_BAD_INPUT)
+
+    def parse_args(self, args=None, namespace=None):
+        ns, extras = self.parse_known_args(args, namespace)
+        if extras:
+            command = getattr(ns, "command", None)
+            sub = _subparser(self, command)
+            shown = " ".join(repr(x) if not x or x.isspace() else x for x in extras)
+            (sub or self).error(f"unrecognized arguments: {shown}")
+        return ns
+
+
+def _subparser(parser: argparse.ArgumentParser, name) -> argparse.ArgumentParser | None:
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            return action.choices.get(name)
+    return None
+
+
+def _subparser_names(parser: argparse.ArgumentParser) -> list[str]:
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            return list(action.choices)
+    return []
+
+
+def _options_of(parser: argparse.ArgumentParser) -> str:
+    opts = [a.option_strings[-1] for a in parser._actions
+            if a.option_strings and a.dest not in ("help", "version", "debug")]
+    return ", ".join(opts) if opts else "none"
+
+
+def _option_fix(message: str, parser: argparse.ArgumentParser) -> str:
+    """An argparse message rewritten as ``what: value -> the fix``."""
+    import re
+
+    help_ = f"`{parser.prog} --help` shows the arguments and an example"
+    m = re.match(r"argument (\S+?)(?:/\S+)?: invalid (int|float) value: (.*)$", message)
+    if m:
+        what = "a whole number" if m.group(2) == "int" else "a number"
+        return f"{m.group(1)}: {m.group(3)} -> {what}"
+    m = re.match(r"argument (\S+?)(?:/\S+)?: invalid choice: (.*?) \(choose from (.*)\)$",
+                 message)
+    if m:
+        return f"{m.group(1)}: {m.group(2)} -> one of {m.group(3)}"
+    m = re.match(r"argument (\S+?)(?:/\S+)?: expected (?:one|at least one) argument$", message)
+    if m:
+        return f"{m.group(1)}: needs a value -> give {m.group(1)} VALUE; {help_}"
+    m = re.match(r"argument (\S+?)(?:/\S+)?: ignored explicit argument (.*)$", message)
+    if m:
+        return f"{m.group(1)}: takes no value ({m.group(2)}) -> write {m.group(1)} alone"
+    m = re.match(r"the following arguments are required: (.*)$", message)
+    if m and m.group(1) == "COMMAND":
+        return "COMMAND: missing -> give one of: " + ", ".join(_subparser_names(parser))
+    if m:
+        return f"{m.group(1)}: missing -> give {m.group(1)}; {help_}"
+    m = re.match(r"unrecognized arguments: (.*)$", message)
+    if m:
+        top = any(isinstance(a, argparse._SubParsersAction) for a in parser._actions)
+        known = ("commands: " + ", ".join(_subparser_names(parser)) if top
+                 else "options: " + _options_of(parser))
+        return (f"{m.group(1)}: not an argument of `{parser.prog}` -> remove it; its {known} "
+                "(--debug and --version go before the command)")
+    return f"{message} -> {help_}"
+
+
 def _command(sub, name: str, help_: str, example: str, ok: str = "") -> argparse.ArgumentParser:
     """A sub-command whose --help ends with an example and the exit codes."""
     return sub.add_parser(name, help=help_, description=help_,
@@ -414,7 +493,7 @@ def _command(sub, name: str, help_: str, example: str, ok: str = "") -> argparse
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = OneLineParser(
         prog="rotorbook",
         description="Multirotor attitude dynamics: design checks, derivations, analyses, records.",
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -573,6 +652,13 @@ def _main(argv: list[str] | None = None) -> int:
         return EXIT_BAD_INPUT if bad_input else EXIT_FAILED
     except BrokenPipeError:  # pragma: no cover - output piped into head and the like
         return EXIT_OK
+    except OSError as exc:  # a file that cannot be read or written (path, permission, space)
+        if args.debug:
+            raise
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"rotorbook: {where}{exc.strerror or exc} -> check the path, its permissions "
+              "and the free space", file=sys.stderr)
+        return EXIT_BAD_INPUT
     except KeyboardInterrupt:  # pragma: no cover
         print("rotorbook: interrupted", file=sys.stderr)
         return 130

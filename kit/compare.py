@@ -158,6 +158,108 @@ def revision_from_design(design: Design, analysis: dict | None = None, source: s
                     kind="design", analysis=analysis, design=design)
 
 
+def _json_num(v) -> bool:
+    """A finite JSON number (an integer too large for a float is not one)."""
+    if isinstance(v, bool) or not isinstance(v, int | float):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except OverflowError:
+        return False
+
+
+def _shown(v) -> str:
+    text = json.dumps(v, allow_nan=True, default=str)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def analysis_problems(data: dict) -> list[str]:
+    """What in an ``analyze --json`` document the comparison cannot read, one line each
+    (``field: value -> what is allowed``); empty for the kit's own output."""
+    out: list[str] = []
+
+    def bad(where: str, value, allowed: str) -> None:
+        out.append(f"{where}: {_shown(value)} -> {allowed} (as `rotorbook analyze --json` "
+                   "writes it)")
+
+    def num_or_none(where: str, v) -> None:
+        if v is not None and not _json_num(v):
+            bad(where, v, "a finite number or null")
+
+    def vector(where: str, v, n: int) -> None:
+        if v is None:
+            return
+        if not (isinstance(v, list) and len(v) == n):
+            bad(where, v, f"a list of {n} numbers")
+            return
+        for i, x in enumerate(v):
+            num_or_none(f"{where}[{i}]", x)
+
+    design = data.get("design")
+    if not isinstance(design, dict):
+        bad("design", design, "a table with name, revision and sha256")
+    else:
+        for k in ("name", "revision", "sha256"):
+            if not isinstance(design.get(k, ""), str):
+                bad(f"design.{k}", design.get(k), "text")
+    mp = data.get("mass_properties")
+    if mp is not None and not isinstance(mp, dict):
+        bad("mass_properties", mp, "a table of mass_kg, com_m, inertia_kg_m2, ...")
+    elif isinstance(mp, dict):
+        num_or_none("mass_properties.mass_kg", mp.get("mass_kg"))
+        vector("mass_properties.com_m", mp.get("com_m"), 3)
+        vector("mass_properties.principal_moments_kg_m2", mp.get("principal_moments_kg_m2"), 3)
+        inertia = mp.get("inertia_kg_m2")
+        if inertia is not None:
+            if not (isinstance(inertia, list) and len(inertia) == 3):
+                bad("mass_properties.inertia_kg_m2", inertia, "a 3 x 3 list of numbers")
+            else:
+                for i, row in enumerate(inertia):
+                    vector(f"mass_properties.inertia_kg_m2[{i}]", row, 3)
+    for key in ("hover", "wheel_study"):
+        if data.get(key) is not None and not isinstance(data[key], dict):
+            bad(key, data[key], "a table")
+    for key in ("rotors",):
+        v = data.get(key)
+        if v is not None and not (isinstance(v, list) and all(isinstance(x, dict) for x in v)):
+            bad(key, v, "a list of tables")
+    for i, c in enumerate(data["checks"]):
+        where = f"checks[{i}]"
+        if not isinstance(c, dict):
+            bad(where, c, "a table with name, value, limit, passed")
+            continue
+        if not isinstance(c.get("name"), str):
+            bad(f"{where}.name", c.get("name"), "text")
+        if not isinstance(c.get("passed"), bool):
+            bad(f"{where}.passed", c.get("passed"), "true or false")
+        for k in ("value", "limit"):
+            if c.get(k) is not None and not (_json_num(c[k]) or isinstance(c[k], bool)):
+                bad(f"{where}.{k}", c[k], "a finite number, true/false or null")
+        for k in ("case", "relation", "unit"):
+            if c.get(k) is not None and not isinstance(c[k], str):
+                bad(f"{where}.{k}", c[k], "text or null")
+    for i, c in enumerate(data["cases"]):
+        where = f"cases[{i}]"
+        if not isinstance(c, dict):
+            bad(where, c, "a table with failed and the case's results")
+            continue
+        failed = c.get("failed")
+        if failed is not None and not (isinstance(failed, list)
+                                       and all(isinstance(n, str) for n in failed)):
+            bad(f"{where}.failed", failed, "a list of rotor names")
+        ratio = c.get("thrust_ratio")
+        pairs = (list(ratio.items()) if isinstance(ratio, dict) else ratio
+                 if isinstance(ratio, list) else None)
+        if ratio is not None and not (pairs is not None and all(
+                isinstance(p, list | tuple) and len(p) == 2 and isinstance(p[0], str)
+                and _json_num(p[1]) for p in pairs)):
+            bad(f"{where}.thrust_ratio", ratio, "null or a table of rotor name = number")
+        if c.get("checks") is not None and not (isinstance(c["checks"], list) and all(
+                isinstance(x, dict) for x in c["checks"])):
+            bad(f"{where}.checks", c["checks"], "a list of tables")
+    return out
+
+
 def load_revision(path: str | Path, progress=None) -> Revision:
     """Read a design file (TOML; analysed here) or an ``analyze --json`` output.
 
@@ -195,6 +297,9 @@ def load_revision(path: str | Path, progress=None) -> Revision:
         if not isinstance(data.get("checks"), list) or not isinstance(data.get("cases"), list):
             raise DesignError(["checks, cases: missing -> the whole output of `rotorbook "
                                "analyze --json`"], path=str(p))
+        problems = analysis_problems(data)
+        if problems:
+            raise DesignError(problems, path=str(p))
         return Revision(source=str(p), file_sha256=sha, kind="analysis", analysis=data)
     from kit.analysis.report import analyze
     from kit.design import load

@@ -48,6 +48,29 @@ MIN_R_SQUARED = 0.98
 MAX_RELATIVE_SE = 0.05
 
 
+#: Range of each column's values, (smallest, largest, unit): far outside any rotor that flies
+#: (10 rad/s is about 95 rpm; 1e5 N is ten tonnes of thrust) and keeping the fit's sums of
+#: fourth powers inside the float range (common practice, no source).
+COLUMN_RANGES: dict[str, tuple[float, float, str]] = {
+    "speed_rad_s": (1.0, 1e5, "rad/s"),
+    "thrust_n": (1e-6, 1e5, "N"),
+    "torque_n_m": (0.0, 1e4, "N m"),
+    "voltage_v": (0.0, 1e4, "V"),
+    "current_a": (-1e4, 1e4, "A"),
+}
+#: Column names in other units, and how to convert them (common practice, no source).
+_UNIT_HINTS = {
+    "rpm": "speed in rad/s as speed_rad_s (rpm x 2 pi / 60 = rpm x 0.10472)",
+    "thrust_g": "thrust in N as thrust_n (grams x 0.00980665)",
+    "thrust_kgf": "thrust in N as thrust_n (kgf x 9.80665)",
+    "gf": "thrust in N as thrust_n (gram-force x 0.00980665)",
+    "n_cm": "torque in N m as torque_n_m (N cm x 0.01)",
+    "n_mm": "torque in N m as torque_n_m (N mm x 0.001)",
+    "oz": "SI units: thrust_n in N, torque_n_m in N m",
+    "lb": "SI units: thrust_n in N, torque_n_m in N m",
+}
+
+
 class StandDataError(ValueError):
     """A stand file cannot be read as stand data; the message says what is wrong and the fix."""
 
@@ -158,9 +181,10 @@ def read_stand_text(text: str, file: str = "<text>", sha256: str = "") -> StandD
     allowed = REQUIRED_COLUMNS + OPTIONAL_COLUMNS
     for h in header:
         if h not in allowed:
-            raise StandDataError(f"{file}: column {h!r} -> one of " + ", ".join(allowed))
+            raise StandDataError(f"{file}: column {h!r} -> " + _column_hint(h, rows[0]))
     if len(set(header)) != len(header):
-        raise StandDataError(f"{file}: a column is named twice -> each column once")
+        twice = next(h for h in header if header.count(h) > 1)
+        raise StandDataError(f"{file}: column {twice!r} is named twice -> each column once")
     for h in REQUIRED_COLUMNS:
         if h not in header:
             raise StandDataError(f"{file}: column {h!r} missing -> columns "
@@ -170,22 +194,23 @@ def read_stand_text(text: str, file: str = "<text>", sha256: str = "") -> StandD
         if len(row) != len(header):
             raise StandDataError(f"{file}: data line {k} has {len(row)} values -> "
                                  f"{len(header)}, one per column")
-        try:
-            vals = [float(x) for x in row]
-        except ValueError:
-            raise StandDataError(f"{file}: data line {k}: {row!r} -> numbers only (SI units, "
-                                 "no unit text)") from None
-        if not all(math.isfinite(x) for x in vals):
-            raise StandDataError(f"{file}: data line {k}: {row!r} -> finite numbers")
+        vals = []
+        for h, x in zip(header, row, strict=True):
+            try:
+                v = float(x)
+            except ValueError:
+                raise StandDataError(f"{file}: data line {k}, {h}: {x.strip()!r} -> a number "
+                                     "(SI units, no unit text)") from None
+            lo, hi, unit = COLUMN_RANGES[h]
+            if not (math.isfinite(v) and lo <= v <= hi):
+                raise StandDataError(f"{file}: data line {k}, {h}: {x.strip()!r} -> a finite "
+                                     f"number from {lo:g} to {hi:g} {unit}")
+            vals.append(v)
         data.append(vals)
     if len(data) < 3:
         raise StandDataError(f"{file}: {len(data)} data line(s) -> at least 3 operating points")
     arr = np.array(data, float)
     col = {h: arr[:, j] for j, h in enumerate(header)}
-    if np.any(col["speed_rad_s"] <= 0) or np.any(col["thrust_n"] <= 0):
-        raise StandDataError(f"{file}: speed_rad_s and thrust_n -> numbers > 0 on every line")
-    if np.any(col["torque_n_m"] < 0):
-        raise StandDataError(f"{file}: torque_n_m -> magnitudes >= 0 on every line")
     return StandData(file=file, sha256=sha256, speed_rad_s=col["speed_rad_s"],
                      thrust_n=col["thrust_n"], torque_n_m=col["torque_n_m"],
                      voltage_v=col.get("voltage_v"), current_a=col.get("current_a"))
@@ -210,10 +235,23 @@ def read_stand_file(path: str | Path, shown: str | None = None) -> StandData:
                              "bytes; a stand file holds data only")
     raw = p.read_bytes()
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8-sig")  # a byte-order mark, as spreadsheets write, is dropped
     except UnicodeDecodeError:
-        raise StandDataError(f"{shown}: not UTF-8 -> save the file as UTF-8") from None
+        raise StandDataError(f"{shown}: not UTF-8 text -> save the file as UTF-8 CSV") from None
+    if "\x00" in text:
+        raise StandDataError(f"{shown}: holds NUL bytes -> a text file (UTF-8 CSV), data only")
     return read_stand_text(text, shown, hashlib.sha256(raw).hexdigest())
+
+
+def _column_hint(name: str, header: list[str]) -> str:
+    """What to write instead of an unknown column name."""
+    low = name.lower().replace(" ", "_")
+    for key, hint in _UNIT_HINTS.items():
+        if key in low:
+            return hint
+    if len(header) == 1 and (";" in name or "\t" in name):
+        return "separate the columns with commas"
+    return "one of " + ", ".join(REQUIRED_COLUMNS + OPTIONAL_COLUMNS)
 
 
 def _through_origin(x: np.ndarray, y: np.ndarray) -> tuple[float, float, np.ndarray, float]:
@@ -241,6 +279,9 @@ def fit(stand: StandData, rotors: tuple[str, ...] = ()) -> RotorFit:
     w2 = stand.speed_rad_s ** 2
     k, k_se, k_res, k_r2 = _through_origin(w2, stand.thrust_n)
     q, q_se, q_res, q_r2 = _through_origin(stand.thrust_n, stand.torque_n_m)
+    if not all(math.isfinite(v) for v in (k, k_se, k_r2, q, q_se, q_r2)):
+        raise StandDataError(f"{stand.file}: the fit gives no finite coefficients -> check "
+                             "the units of the columns (rad/s, N, N m)")
     if not (k > 0 and q > 0):
         raise StandDataError(f"{stand.file}: the fitted coefficients are not positive -> check "
                              "the sign and units of the thrust and torque columns")

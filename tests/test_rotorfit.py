@@ -99,14 +99,48 @@ def test_poor_fit_warns(tmp_path):
 
 @pytest.mark.parametrize("text, fragment", [
     ("speed_rad_s,thrust_n\n1,2\n2,3\n3,4\n", "column 'torque_n_m' missing"),
-    ("speed_rad_s,thrust_n,torque_n_m,rpm\n1,2,3,4\n", "column 'rpm' -> one of"),
-    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n2,3 N,0.2\n3,4,0.3\n", "numbers only"),
+    ("speed_rad_s,thrust_n,torque_n_m,temp\n1,2,3,4\n", "column 'temp' -> one of"),
+    ("speed_rpm,thrust_n,torque_n_m\n1,2,3\n", r"column 'speed_rpm' -> speed in rad/s .*0\.10472"),
+    ("thrust_g,speed_rad_s,torque_n_m\n1,2,3\n", r"thrust in N .*0\.00980665"),
+    ("speed_rad_s;thrust_n;torque_n_m\n1;2;3\n", "separate the columns with commas"),
+    ("speed_rad_s,thrust_n,torque_n_m,thrust_n\n1,2,3,2\n", "column 'thrust_n' is named twice"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n2,3 N,0.2\n3,4,0.3\n",
+     "data line 3, thrust_n: '3 N' -> a number"),
     ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n", "at least 3 operating points"),
-    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n-2,3,0.2\n3,4,0.3\n", "numbers > 0"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n-2,3,0.2\n3,4,0.3\n",
+     "data line 3, speed_rad_s: '-2' -> a finite number from 1 to 100000 rad/s"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n2,-3,0.2\n3,4,0.3\n", "thrust_n: '-3'"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1,2,0.1\n2,3,nan\n3,4,0.3\n", "torque_n_m: 'nan'"),
+    # speeds this small underflow the sums of fourth powers to zero
+    ("speed_rad_s,thrust_n,torque_n_m\n1e-160,2,0.1\n2e-160,3,0.2\n3e-160,4,0.3\n",
+     "speed_rad_s: '1e-160' -> a finite number from 1"),
+    ("speed_rad_s,thrust_n,torque_n_m\n1e160,2,0.1\n2e160,3,0.2\n3e160,4,0.3\n",
+     "speed_rad_s: '1e160' -> a finite number from 1"),
 ])
 def test_bad_stand_text_is_one_clear_line(text, fragment):
     with pytest.raises(rotorfit.StandDataError, match=fragment):
         rotorfit.read_stand_text(text)
+
+
+def test_a_byte_order_mark_is_read_as_utf8(tmp_path):
+    """Spreadsheets write UTF-8 CSV with a byte-order mark; it is not part of the header."""
+    text = "# made-up points\nspeed_rad_s,thrust_n,torque_n_m\n100,1,0.02\n200,4,0.08\n" \
+           "300,9,0.18\n"
+    plain, marked = tmp_path / "plain.csv", tmp_path / "marked.csv"
+    plain.write_bytes(text.encode("utf-8"))
+    marked.write_bytes(text.encode("utf-8-sig"))
+    a, b = rotorfit.read_stand_file(plain), rotorfit.read_stand_file(marked)
+    assert (a.thrust_n == b.thrust_n).all() and (a.speed_rad_s == b.speed_rad_s).all()
+
+
+def test_stand_file_in_utf16_or_with_nul_bytes_is_refused(tmp_path):
+    p = tmp_path / "s.csv"
+    p.write_bytes("speed_rad_s,thrust_n,torque_n_m\n1,2,3\n".encode("utf-16"))
+    with pytest.raises(rotorfit.StandDataError, match="save the file as UTF-8"):
+        rotorfit.read_stand_file(p)
+    p.write_bytes(b"speed_rad_s,thrust_n,torque_n_m\n1,2,3\x00\n")
+    with pytest.raises(rotorfit.StandDataError, match="NUL"):
+        rotorfit.read_stand_file(p)
 
 
 def test_bad_stand_file_in_a_design_is_a_design_error(tmp_path):

@@ -24,11 +24,11 @@ from kit.compare import Comparison
 from kit.errors import RecordError
 from kit.fileio import write_atomic
 from kit.record.render import (
-    CAUTIONS,
-    TEMPLATE_DIR,
-    TEMPLATE_NAME,
     bokeh_head,
+    cautions_section,
     git_commit,
+    html_page,
+    sheet_header,
     utc_date,
 )
 
@@ -181,17 +181,15 @@ def render_comparison(cmp: Comparison, date: str | None = None, commit: str | No
     commit = git_commit() if commit is None else commit
     o, n = cmp.old, cmp.new
     status = "worse" if cmp.worse else ("unchanged" if cmp.unchanged else "not-worse")
-    css = (TEMPLATE_DIR / TEMPLATE_NAME / "record.css").read_text(encoding="utf-8") + CSS
     figs = _figures(cmp) if figures else ""
     head_js = bokeh_head({"bokeh": True}) if figs else ""
 
     def side(label, rev):
         verdict = ('<span class="rb-pass">PASS</span>' if rev.verdict == "PASS"
                    else '<span class="rb-fail">FAIL</span>')
-        return (f"<tr><th>{label}</th><td>{e(rev.name)}, revision {e(rev.revision)} "
-                f"&#8212; {e(Path(rev.source).name)} ({e(rev.kind)}); verdict {verdict}"
-                f"</td></tr><tr><th>{label} file SHA-256</th>"
-                f'<td class="rb-mono">{e(rev.file_sha256)}</td></tr>')
+        return [(label, f"{e(rev.name)}, revision {e(rev.revision)} &#8212; "
+                        f"{e(Path(rev.source).name)} ({e(rev.kind)}); verdict {verdict}"),
+                (f"{label} file SHA-256", e(rev.file_sha256), "rb-mono")]
 
     verdict_cls = "rb-verdict rb-worse" if cmp.worse else "rb-verdict"
     sections = [f'<div class="{verdict_cls}" role="status"><strong>{e(cmp.verdict_text())}'
@@ -257,44 +255,14 @@ def render_comparison(cmp: Comparison, date: str | None = None, commit: str | No
     title = f"{o.name} rev. {o.revision} \u2192 {n.name} rev. {n.revision}"
     kit_line = f"rotorbook {e(kit.__version__)}" + (
         f', commit <span class="rb-mono">{e(commit)}</span>' if commit else "")
-    return f"""<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="rotorbook {e(kit.__version__)}">
-<meta name="rotorbook-comparison" content="{status}">
-<title>Comparison &#8212; {e(title)}</title>
-<style>
-{css}
-</style>
-{head_js}
-</head>
-<body>
-<main>
-<header class="rb-sheet-head">
-<div class="rb-kicker">Rotorbook revision comparison</div>
-<h1>{e(title)}</h1>
-<table class="rb-meta">
-{side("Old", o)}
-{side("New", n)}
-<tr><th>Kit</th><td>{kit_line}</td></tr>
-<tr><th>Date (UTC)</th><td>{e(date)}</td></tr>
-</table>
-</header>
-{"".join(sections)}
-<section class="rb-cautions">
-<h2>Cautions</h2>
-<ul>
-{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}
-</ul>
-<p class="rb-foot">Made by rotorbook {e(kit.__version__)} from two analyses. This page is
-self-contained: it loads nothing from the network.</p>
-</section>
-</main>
-</body>
-</html>
-"""
+    head = sheet_header("Rotorbook revision comparison", e(title),
+                        side("Old", o) + side("New", n)
+                        + [("Kit", kit_line), ("Date (UTC)", e(date))])
+    foot = ('<p class="rb-foot">Made by rotorbook ' + e(kit.__version__) + " from two analyses. "
+            "This page is self-contained: it loads nothing from the network.</p>")
+    return html_page(f"Comparison \u2014 {title}",
+                     f'{head}\n{"".join(sections)}\n{cautions_section(foot)}',
+                     meta=[("rotorbook-comparison", status)], css=CSS, head_js=head_js)
 
 
 def comparison_file_name(cmp: Comparison) -> str:

@@ -25,7 +25,7 @@ from pathlib import Path
 import kit
 from kit.errors import DesignWarning, RecordError
 from kit.fileio import write_atomic
-from kit.record.render import CAUTIONS, TEMPLATE_DIR, TEMPLATE_NAME, utc_date
+from kit.record.render import cautions_section, html_page, sheet_header, utc_date
 
 REVISIONS = "revisions"
 _NUMBERED = re.compile(r"^(\d{2,})-.*\.toml$")
@@ -179,16 +179,27 @@ def add_revision(folder: str | Path, design_path: str | Path, force: bool = Fals
     return f"{src}: added as revision {last_no + 1:02d}"
 
 
+def _cache_matches(data, design) -> bool:
+    """Whether a cached analysis is this file's, by this kit, and readable as a whole (a
+    cache that is not is computed again)."""
+    from kit.compare import analysis_problems
+
+    return (isinstance(data, dict) and isinstance(data.get("design"), dict)
+            and data["design"].get("sha256") == design.sha256
+            and data.get("kit_version") == kit.__version__
+            and isinstance(data.get("checks"), list) and isinstance(data.get("cases"), list)
+            and not analysis_problems(data))
+
+
 def _analysis(path: Path, design) -> dict:
     """The revision's analysis JSON, from its cache file while the SHA-256 matches."""
     cache = path.with_name(path.stem + ".analysis.json")
     if cache.exists():
         try:
             data = json.loads(cache.read_text(encoding="utf-8"))
-            if (data.get("design") or {}).get("sha256") == design.sha256 and \
-                    data.get("kit_version") == kit.__version__:
+            if _cache_matches(data, design):
                 return data
-        except (OSError, ValueError):
+        except (OSError, ValueError):  # unreadable or not JSON: computed again below
             pass
     from kit.analysis.report import analyze
 
@@ -240,7 +251,6 @@ def write_history(folder: str | Path, add=(), force: bool = False,
 
 def render_history(entries, comparisons, date: str) -> str:
     """``revisions/index.html``: every revision in order, its verdict and the comparisons."""
-    css = (TEMPLATE_DIR / TEMPLATE_NAME / "record.css").read_text(encoding="utf-8")
     rows = []
     for k, en in enumerate(entries):
         checks = [c for c in en.analysis.get("checks") or [] if isinstance(c, dict)]
@@ -258,29 +268,11 @@ def render_history(entries, comparisons, date: str) -> str:
                     f'<td><span class="{vcls}">{e(verdict)}</span> ({passed} of {len(checks)} '
                     f"checks met)</td><td>{link}</td></tr>")
     name = entries[-1].design.name if entries else ""
-    return f"""<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="rotorbook {e(kit.__version__)}">
-<title>Revisions &#8212; {e(name)}</title>
-<style>
-{css}
-</style>
-</head>
-<body>
-<main>
-<header class="rb-sheet-head">
-<div class="rb-kicker">Rotorbook revision history</div>
-<h1>{e(name)}</h1>
-<table class="rb-meta">
-<tr><th>Revisions</th><td>{len(entries)}</td></tr>
-<tr><th>Latest</th><td>{e(entries[-1].design.revision) if entries else ""}</td></tr>
-<tr><th>Kit</th><td>rotorbook {e(kit.__version__)}</td></tr>
-<tr><th>Date (UTC)</th><td>{e(date)}</td></tr>
-</table>
-</header>
+    head = sheet_header("Rotorbook revision history", e(name),
+                        [("Revisions", str(len(entries))),
+                         ("Latest", e(entries[-1].design.revision) if entries else ""),
+                         ("Kit", f"rotorbook {e(kit.__version__)}"), ("Date (UTC)", e(date))])
+    return html_page(f"Revisions \u2014 {name}", f"""{head}
 <table class="rb-checks">
 <thead><tr><th>#</th><th>Revision</th><th>Design file</th><th>SHA-256 (first 16)</th>
 <th>Verdict</th><th>Comparison with the one before</th></tr></thead>
@@ -288,11 +280,4 @@ def render_history(entries, comparisons, date: str) -> str:
 {"".join(rows)}
 </tbody>
 </table>
-<section class="rb-cautions"><h2>Cautions</h2><ul>
-{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}
-</ul></section>
-</main>
-</body>
-</html>
-"""
-
+{cautions_section()}""")

@@ -396,6 +396,65 @@ def render_record(nb, *, design, workbook: str, date: str, failure: _ex.CellFail
     return body, checks
 
 
+def record_css(extra: str = "") -> str:
+    """The records' stylesheet (``record.css`` of the template), with ``extra`` rules after."""
+    return (TEMPLATE_DIR / TEMPLATE_NAME / "record.css").read_text(encoding="utf-8") + extra
+
+
+def html_page(title: str, body: str, *, meta: Sequence[tuple[str, str]] = (), css: str = "",
+              head_js: str = "") -> str:
+    """One self-contained page in the records' look: the head every page of the kit shares
+    (charset, viewport, generator, ``meta`` name/content pairs, title, the records'
+    stylesheet plus ``css``, ``head_js``) and ``body`` inside ``<main>``.
+
+    ``title`` is plain text (escaped here); ``body``, ``css`` and ``head_js`` are HTML, CSS and
+    script the caller has escaped. Used by the index, the comparison record and the revision
+    history (the notebook records share the stylesheet through their nbconvert template).
+    """
+    e = html.escape
+    metas = "".join(f'<meta name="{e(k)}" content="{e(v)}">\n' for k, v in meta)
+    return f"""<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<meta name="generator" content="rotorbook {e(kit.__version__)}">
+{metas}<title>{e(title)}</title>
+<style>
+{record_css(css)}
+</style>
+{head_js}
+</head>
+<body>
+<main>
+{body}
+</main>
+</body>
+</html>
+"""
+
+
+def sheet_header(kicker: str, title_html: str, rows: Sequence[tuple[str, ...]],
+                 after_title: str = "") -> str:
+    """The header block of a page: kicker, title, ``after_title`` (e.g. the verdict), then a
+    table of (label, HTML value) or (label, HTML value, cell class) rows. ``kicker`` and the
+    labels are plain text."""
+    e = html.escape
+    body = "\n".join(f"<tr><th>{e(r[0])}</th><td"
+                     + (f' class="{e(r[2])}"' if len(r) > 2 else "") + f">{r[1]}</td></tr>"
+                     for r in rows)
+    return (f'<header class="rb-sheet-head">\n<div class="rb-kicker">{e(kicker)}</div>\n'
+            f"<h1>{title_html}</h1>\n{after_title}"
+            f'<table class="rb-meta">\n{body}\n</table>\n</header>')
+
+
+def cautions_section(foot_html: str = "") -> str:
+    """The cautions every page closes with, and an optional footnote (HTML)."""
+    items = "".join(f"<li>{html.escape(c)}</li>" for c in CAUTIONS)
+    return f'<section class="rb-cautions"><h2>Cautions</h2><ul>\n{items}\n</ul>{foot_html}' \
+           "</section>"
+
+
 def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRecord]) -> str:
     """``index.html``: the records of this run, with their run status and design checks.
 
@@ -431,7 +490,6 @@ def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRec
         f"{e(checks)}</td></tr>"
         for name, href, status, checks, bad in rows
     )
-    css = (TEMPLATE_DIR / TEMPLATE_NAME / "record.css").read_text(encoding="utf-8")
     all_ok = all(r[2] != "FAILED" for r in rows)
     any_fail = any(r[4] for r in rows)
     if not all_ok:
@@ -449,46 +507,24 @@ def render_index(out_dir: Path, design, date: str, current: Sequence[WorkbookRec
     else:
         verdict = ""
     notes = getattr(design, "notes", "") or ""
-    notes_row = f"<tr><th>Notes</th><td>{e(notes)}</td></tr>" if notes else ""
-    return f"""<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="rotorbook-status" content="{"passed" if all_ok else "FAILED"}">
-<title>Records &#8212; {e(design.name)} rev. {e(design.revision)}</title>
-<style>
-{css}
-</style>
-</head>
-<body>
-<main>
-{verdict if not all_ok else ""}
-<header class="rb-sheet-head">
-<div class="rb-kicker">Rotorbook calculation records</div>
-<h1>{e(design.name)} <span class="rb-rev">rev. {e(design.revision)}</span></h1>
-{verdict if all_ok else ""}
-<table class="rb-meta">
-<tr><th>Revision</th><td>{e(design.revision)}</td></tr>
-<tr><th>Design file SHA-256</th><td class="rb-mono">{e(design.sha256)}</td></tr>
-{notes_row}
-<tr><th>Kit</th><td>rotorbook {e(kit.__version__)}</td></tr>
-<tr><th>Date (UTC)</th><td>{e(date)}</td></tr>
-</table>
-</header>
+    meta_rows = [("Revision", e(design.revision)),
+                 ("Design file SHA-256", e(design.sha256), "rb-mono")]
+    meta_rows += [("Notes", e(notes))] if notes else []
+    meta_rows += [("Kit", f"rotorbook {e(kit.__version__)}"), ("Date (UTC)", e(date))]
+    head = sheet_header("Rotorbook calculation records",
+                        f'{e(design.name)} <span class="rb-rev">rev. {e(design.revision)}</span>',
+                        meta_rows, after_title=f"{verdict}\n" if all_ok and verdict else "")
+    page = f"""{verdict if not all_ok else ""}
+{head}
 <table class="rb-checks">
 <thead><tr><th>Record</th><th>Executed notebook</th><th>Run</th><th>Design checks</th></tr></thead>
 <tbody>
 {body}
 </tbody>
 </table>
-<section class="rb-cautions"><h2>Cautions</h2><ul>
-{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}
-</ul></section>
-</main>
-</body>
-</html>
-"""
+{cautions_section()}"""
+    return html_page(f"Records \u2014 {design.name} rev. {design.revision}", page,
+                     meta=[("rotorbook-status", "passed" if all_ok else "FAILED")])
 
 
 def _record_meta(path: Path) -> tuple[str, str] | None:

@@ -828,9 +828,7 @@ def response_data(sim, n_rotors: int, max_points: int = 400) -> dict[str, dict]:
 
 def wheel_figure():
     """H2 ratio against wheel momentum, the chosen momentum as a marker, flags in orange."""
-    from bokeh.models import Span
-
-    from bokeh.models import Range1d
+    from bokeh.models import Range1d, Span
 
     p = new_figure("Disturbance sensitivity against wheel momentum", "wheel momentum h (N m s)",
                    "H2 ratio to h = 0 (1)", width=460, height=320, x_range=Range1d(-1, 1),

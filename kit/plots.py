@@ -284,20 +284,47 @@ def bokehjs_url_path() -> str:
     return f"rotorbook/bokehjs/{bokeh.__version__}/bokeh.min.js"
 
 
+#: JavaScript: in a Jupyter page, stop BokehJS documents from passing the changes they applied
+#: from the kernel (``sync: false``) to their change listeners. jupyter_bokeh's view sends every
+#: change it hears back to the kernel, so without this each figure patch comes back as one
+#: message per changed property (the whole data again), each also a busy/idle pair of kernel
+#: status messages; Bokeh's own server session drops these changes the same way. A listener
+#: with ``rb_all_events = true`` (the latency harness of the browser tests) still hears them.
+QUIET_PATCHES_JS = (
+    "function rbQuietPatches() {"
+    "const B = window.Bokeh; if (B === undefined || !B.require) return;"
+    "let D; try {D = B.require('document').Document;} catch (e) {return;}"
+    "if (D.prototype.rbQuiet) return;"
+    "const trigger = D.prototype._trigger_on_change;"
+    "D.prototype._trigger_on_change = function (event) {"
+    "const inner = event && Array.isArray(event.events) ? event.events : [event];"
+    "if (!inner.length || !inner.every((e) => e && e.sync === false))"
+    " return trigger.call(this, event);"
+    "const all = this._callbacks; if (!(all instanceof Map)) return trigger.call(this, event);"
+    "this._callbacks = new Map(Array.from(all).filter(([cb]) => cb.rb_all_events));"
+    "try {return trigger.call(this, event);} finally {this._callbacks = all;}};"
+    "D.prototype.rbQuiet = true;}"
+)
+
+
 def loader_js() -> str:
     """JavaScript that loads BokehJS once from the local installation through the Jupyter server.
 
     It does nothing when BokehJS is already there (a record embeds it) or when the page is not
-    a Jupyter page (no ``jupyter-config-data``), so it never fetches anything in a record.
+    a Jupyter page (no ``jupyter-config-data``), so it never fetches anything in a record. In a
+    Jupyter page it also installs :data:`QUIET_PATCHES_JS` once BokehJS is there.
     """
     path = json.dumps(bokehjs_url_path())
     return (
+        f"{QUIET_PATCHES_JS}"
+        "if (document.getElementById('jupyter-config-data')) rbQuietPatches();"
         "if (window.Bokeh === undefined && !window.rbBokehLoading) {"
         "const cfg = document.getElementById('jupyter-config-data');"
         "if (cfg) {window.rbBokehLoading = true;"
         "let base = '/'; try {base = JSON.parse(cfg.textContent).baseUrl || '/';} catch (e) {}"
         "const s = document.createElement('script');"
         f"s.src = base.replace(/\\/?$/, '/') + {path};"
+        "s.onload = rbQuietPatches;"
         "s.onerror = function () {window.rbBokehLoading = false;"
         "console.warn('rotorbook: BokehJS is not served by this Jupyter server');};"
         "document.head.appendChild(s);}}"

@@ -283,7 +283,10 @@ LATENCY_HARNESS_JS = """() => {
     for (const d of all) {
       if (H.docs.has(d)) continue;
       H.docs.add(d);
-      d.on_change(() => { H.pending += 1; });
+      // also the changes a document applies from the kernel (see kit.plots.QUIET_PATCHES_JS)
+      const heard = () => { H.pending += 1; };
+      heard.rb_all_events = true;
+      d.on_change(heard);
     }
   };
   const frame = () => {

@@ -223,6 +223,14 @@ def main(only=()) -> int:
                         print(f"{nb}: opened and run in {time.monotonic() - t0:.1f} s",
                               flush=True)
                         for title, controls in panels:
+                            if title == "Rotor failure":
+                                # the horizon slider is live once the record's horizon is off
+                                box = panel_locator(page, title).first.locator(
+                                    ".widget-checkbox").filter(
+                                    has_text="horizon as in the record").locator("input")
+                                if box.count() and box.first.is_checked():
+                                    box.first.click()
+                                    page.wait_for_timeout(1500)
                             rows += run_panel(page, title, controls)
                             if title == "Rotor failure":
                                 # ratio sliders: in thrust-ratio mode (left there by the toggle

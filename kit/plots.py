@@ -181,6 +181,86 @@ def show_legend_item(p, label: str, shown: bool) -> None:
                 item.visible = shown
 
 
+def nice_step(span: float, ticks: int = 5) -> float:
+    """A step of 1, 2, 2.5 or 5 times a power of ten, near ``span / ticks``."""
+    raw = abs(float(span)) / max(ticks, 1)
+    if not math.isfinite(raw) or raw <= 0:
+        return 1.0
+    mag = 10.0 ** math.floor(math.log10(raw))
+    for m in (1.0, 2.0, 2.5, 5.0, 10.0):
+        if m * mag >= raw:
+            return m * mag
+    return 10.0 * mag
+
+
+def nice_bounds(values, pad: float = 0.05, start: float | None = None,
+                symmetric: bool = False) -> tuple[float, float] | None:
+    """Bounds of a range holding every finite value, padded and rounded out to a nice step.
+
+    Rounding out to the step of :func:`nice_step` keeps the range (and the axis) unchanged
+    while the data move within it, so a figure is not laid out again for small changes.
+    ``start`` fixes the lower bound (a bar chart from 0); ``symmetric`` centres the range on 0.
+    None when there is no finite value (the caller keeps the range it has).
+    """
+    a = np.asarray([v for v in values if v is not None], float).ravel()
+    a = a[np.isfinite(a)]
+    if start is not None:
+        a = np.append(a, float(start))
+    if not a.size:
+        return None
+    lo, hi = float(a.min()), float(a.max())
+    if symmetric:
+        hi = max(abs(lo), abs(hi))
+        lo = -hi
+    span = hi - lo
+    if span <= 0:
+        span = abs(hi) * 0.2 or 1.0
+        lo, hi = lo - 0.5 * span, hi + 0.5 * span
+    step = nice_step(span * (1 + 2 * pad))
+    out_lo = float(start) if start is not None else math.floor((lo - pad * span) / step) * step
+    out_hi = math.ceil((hi + pad * span) / step) * step
+    if out_hi <= out_lo:
+        out_hi = out_lo + step
+    return float(f"{out_lo:.{SIG}g}"), float(f"{out_hi:.{SIG}g}")
+
+
+def fit_axes(fig, axis: str, columns, pad: float = 0.05, start: float | None = None,
+             symmetric: bool = False) -> None:
+    """Let ``fig``'s ``axis`` ("x", "y", or "xy" for one range shared by both axes of a
+    square frame) follow the data of ``columns``, a list of (source, column name) pairs.
+
+    The range is a ``Range1d`` set in the kernel by :func:`refit` in the same document change
+    as the data (one message, one repaint), instead of a ``DataRange1d`` that the page would
+    recompute after drawing (a second layout and repaint, and a message back to the kernel).
+    """
+    spec = dict(getattr(fig, "_rb_fit", None) or {})
+    spec[axis] = (list(columns), pad, start, symmetric)
+    fig._rb_fit = spec
+
+
+def refit(fig) -> None:
+    """Set the ranges declared by :func:`fit_axes` from the sources' current data.
+
+    Nothing changes where the rounded bounds are the same (no event, no new layout), nor
+    where there is no finite value (an empty figure keeps its axes).
+    """
+    for axis, (columns, pad, start, symmetric) in (getattr(fig, "_rb_fit", None) or {}).items():
+        values: list = []
+        for src, col in columns:
+            for v in src.data.get(col, ()):
+                if isinstance(v, list | tuple | np.ndarray):
+                    values.extend(np.asarray(v, float).ravel().tolist())
+                else:
+                    values.append(v)
+        b = nice_bounds(values, pad, start, symmetric)
+        if b is None:
+            continue
+        for rng in ((fig.x_range, fig.y_range) if axis == "xy" else
+                    (fig.x_range if axis == "x" else fig.y_range,)):
+            if (rng.start, rng.end) != b:
+                rng.update(start=b[0], end=b[1])
+
+
 def _source(**cols):
     from bokeh.models import ColumnDataSource
 
@@ -204,20 +284,47 @@ def bokehjs_url_path() -> str:
     return f"rotorbook/bokehjs/{bokeh.__version__}/bokeh.min.js"
 
 
+#: JavaScript: in a Jupyter page, stop BokehJS documents from passing the changes they applied
+#: from the kernel (``sync: false``) to their change listeners. jupyter_bokeh's view sends every
+#: change it hears back to the kernel, so without this each figure patch comes back as one
+#: message per changed property (the whole data again), each also a busy/idle pair of kernel
+#: status messages; Bokeh's own server session drops these changes the same way. A listener
+#: with ``rb_all_events = true`` (the latency harness of the browser tests) still hears them.
+QUIET_PATCHES_JS = (
+    "function rbQuietPatches() {"
+    "const B = window.Bokeh; if (B === undefined || !B.require) return;"
+    "let D; try {D = B.require('document').Document;} catch (e) {return;}"
+    "if (D.prototype.rbQuiet) return;"
+    "const trigger = D.prototype._trigger_on_change;"
+    "D.prototype._trigger_on_change = function (event) {"
+    "const inner = event && Array.isArray(event.events) ? event.events : [event];"
+    "if (!inner.length || !inner.every((e) => e && e.sync === false))"
+    " return trigger.call(this, event);"
+    "const all = this._callbacks; if (!(all instanceof Map)) return trigger.call(this, event);"
+    "this._callbacks = new Map(Array.from(all).filter(([cb]) => cb.rb_all_events));"
+    "try {return trigger.call(this, event);} finally {this._callbacks = all;}};"
+    "D.prototype.rbQuiet = true;}"
+)
+
+
 def loader_js() -> str:
     """JavaScript that loads BokehJS once from the local installation through the Jupyter server.
 
     It does nothing when BokehJS is already there (a record embeds it) or when the page is not
-    a Jupyter page (no ``jupyter-config-data``), so it never fetches anything in a record.
+    a Jupyter page (no ``jupyter-config-data``), so it never fetches anything in a record. In a
+    Jupyter page it also installs :data:`QUIET_PATCHES_JS` once BokehJS is there.
     """
     path = json.dumps(bokehjs_url_path())
     return (
+        f"{QUIET_PATCHES_JS}"
+        "if (document.getElementById('jupyter-config-data')) rbQuietPatches();"
         "if (window.Bokeh === undefined && !window.rbBokehLoading) {"
         "const cfg = document.getElementById('jupyter-config-data');"
         "if (cfg) {window.rbBokehLoading = true;"
         "let base = '/'; try {base = JSON.parse(cfg.textContent).baseUrl || '/';} catch (e) {}"
         "const s = document.createElement('script');"
         f"s.src = base.replace(/\\/?$/, '/') + {path};"
+        "s.onload = rbQuietPatches;"
         "s.onerror = function () {window.rbBokehLoading = false;"
         "console.warn('rotorbook: BokehJS is not served by this Jupyter server');};"
         "document.head.appendChild(s);}}"
@@ -538,8 +645,10 @@ def thrust_figure(names, title: str = "Thrust per rotor against its limit",
 
     ``threshold=False`` leaves the threshold tick (and its legend entry) out.
     """
+    from bokeh.models import Range1d
+
     p = new_figure(title, "rotor", "thrust (N)", width=340, height=330,
-                   x_range=list(names))
+                   x_range=list(names), y_range=Range1d(0, 1))
     s = {"bars": _source(name=[], thrust=[], colour=[], limit=[], threshold=[], label=[])}
     p.vbar(x="name", top="thrust", width=0.6, source=s["bars"], fill_color="colour",
            line_color=None, legend_field="label")
@@ -548,7 +657,8 @@ def thrust_figure(names, title: str = "Thrust per rotor against its limit",
     if threshold:
         p.scatter(x="name", y="threshold", source=s["bars"], marker="dash", size=34,
                   line_width=2, line_color=COLOURS["threshold"], legend_label="review threshold")
-    p.y_range.start = 0
+    fit_axes(p, "y", [(s["bars"], "thrust"), (s["bars"], "limit"), (s["bars"], "threshold")],
+             start=0.0)
     _legend_style(p, "top_left")
     # below the plot, so that it never hides a bar
     p.legend.orientation = "horizontal"
@@ -579,9 +689,12 @@ def thrust_data(names, thrust_n, max_thrust_n, working=None, spin=None,
 
 def torque_figure():
     """Torque authority about each body axis while holding the weight, in N m."""
+    from bokeh.models import Range1d
+
     p = new_figure("Torque authority in hover", "body axis", "torque (N m)", width=320,
-                   height=300, x_range=["roll x", "pitch y", "yaw z"])
+                   height=300, x_range=["roll x", "pitch y", "yaw z"], y_range=Range1d(-1, 1))
     s = {"bars": _source(axis=[], top=[], bottom=[], margin=[])}
+    fit_axes(p, "y", [(s["bars"], "top"), (s["bars"], "bottom"), (s["bars"], "margin")])
     p.vbar(x="axis", top="top", bottom="bottom", width=0.5, source=s["bars"],
            fill_color=COLOURS["fixed_gain"], line_color=None, legend_label="min .. max")
     p.scatter(x="axis", y="margin", source=s["bars"], marker="dash", size=28, line_width=3,
@@ -601,10 +714,10 @@ def torque_data(torque_max_n_m, torque_min_n_m, margin_n_m) -> dict[str, dict]:
 
 def poles_figure():
     """Open- and closed-loop poles of the reduced model, in 1/s."""
-    from bokeh.models import Span
+    from bokeh.models import Range1d, Span
 
     p = new_figure("Poles of the reduced model", "real part (1/s)", "imaginary part (1/s)",
-                   width=300, height=300)
+                   width=300, height=300, x_range=Range1d(-1, 1), y_range=Range1d(-1, 1))
     s = {"closed": _source(re=[], im=[]), "open": _source(re=[], im=[])}
     p.add_layout(Span(location=0, dimension="height", line_color="#888888", line_width=1))
     p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
@@ -614,6 +727,9 @@ def poles_figure():
               fill_color=COLOURS["closed_loop"], line_color=COLOURS["closed_loop"],
               legend_label="closed loop (LQR)")
     _anchor(p, s)
+    fit_axes(p, "x", [(s[k], "re") for k in ("closed", "open", "anchor")], pad=0.1)
+    fit_axes(p, "y", [(s[k], "im") for k in ("closed", "open", "anchor")], pad=0.1,
+             symmetric=True)
     _legend_below(p)
     return p, s
 
@@ -632,12 +748,12 @@ def poles_data(closed_loop, open_loop) -> dict[str, dict]:
 
 def circle_figure():
     """The centre of mass's circle in the world's horizontal plane, in mm."""
-    from bokeh.models import DataRange1d
+    from bokeh.models import Range1d
 
-    # padded data ranges so the whole circle (and its line width) stays inside the frame
+    # one padded range on both axes of a square frame, so the circle is round and whole
     p = new_figure("Centre-of-mass path (from above)", "east (mm)", "north (mm)",
-                   width=270, height=330, match_aspect=True,
-                   x_range=DataRange1d(range_padding=0.2), y_range=DataRange1d(range_padding=0.2))
+                   width=270, height=330, x_range=Range1d(-1, 1), y_range=Range1d(-1, 1))
+    p.frame_width = p.frame_height = 190
     p.xaxis.ticker.desired_num_ticks = 4
     p.yaxis.ticker.desired_num_ticks = 4
     s = {"path": _source(x=[], y=[]), "centre": _source(x=[], y=[])}
@@ -646,6 +762,8 @@ def circle_figure():
     p.scatter(x="x", y="y", source=s["centre"], marker="cross", size=12,
               line_color=COLOURS["com"], line_width=2, legend_label="circle centre")
     _anchor(p, s, "x", "y")
+    fit_axes(p, "xy", [(s[k], c) for k in ("path", "anchor") for c in ("x", "y")], pad=0.1,
+             symmetric=True)
     _legend_below(p)
     return p, s
 
@@ -665,12 +783,12 @@ def response_figures(names, max_thrust_n=None):
 
     ``max_thrust_n`` (N, per rotor) draws each distinct thrust limit as a dashed line.
     """
-    from bokeh.models import Span
+    from bokeh.models import Range1d, Span
 
     rates = new_figure("Body rates after the failure", "time (s)", "rate (rad/s)",
-                       width=380, height=260)
+                       width=380, height=260, x_range=Range1d(0, 1), y_range=Range1d(-1, 1))
     thrust = new_figure("Rotor thrusts after the failure", "time (s)", "thrust (N)",
-                        width=380, height=260, x_range=rates.x_range)
+                        width=380, height=260, x_range=rates.x_range, y_range=Range1d(-1, 1))
     cols = {"t": []}
     for k in ("p", "q", "r", "spin", "alt"):
         cols[k] = []
@@ -701,6 +819,15 @@ def response_figures(names, max_thrust_n=None):
         p.scatter(x="t", y="y", source=s["anchor"], size=1, alpha=0.0)
         p.add_layout(Span(location=0, dimension="width", line_color="#888888", line_width=1))
         _legend_right(p)
+    # the shared time axis is fitted once, on the rates figure
+    fit_axes(rates, "x", [(s["series"], "t"), (s["anchor"], "t")], pad=0.0)
+    fit_axes(rates, "y", [(s["series"], k) for k in ("p", "q", "r", "spin")]
+             + [(s["anchor"], "y")])
+    limits = [] if max_thrust_n is None else [float(f) for f in
+                                              np.asarray(max_thrust_n, float).ravel()]
+    s["limits"] = _source(y=limits)
+    fit_axes(thrust, "y", [(s["series"], f"f{i}") for i in range(len(names))]
+             + [(s["anchor"], "y"), (s["limits"], "y")])
     return rates, thrust, s
 
 
@@ -728,12 +855,18 @@ def response_data(sim, n_rotors: int, max_points: int = 400) -> dict[str, dict]:
 
 def wheel_figure():
     """H2 ratio against wheel momentum, the chosen momentum as a marker, flags in orange."""
-    from bokeh.models import Span
+    from bokeh.models import Range1d, Span
 
     p = new_figure("Disturbance sensitivity against wheel momentum", "wheel momentum h (N m s)",
-                   "H2 ratio to h = 0 (1)", width=460, height=320)
+                   "H2 ratio to h = 0 (1)", width=460, height=320, x_range=Range1d(-1, 1),
+                   y_range=Range1d(0, 2))
     s = {"curve": _source(h=[], ratio=[], fixed=[]), "flags": _source(h=[], ratio=[], text=[]),
          "marker": _source(h=[], ratio=[])}
+    # the ratio 1 (h = 0) is always in view; this source only feeds the range
+    s["one"] = _source(y=[1.0])
+    fit_axes(p, "x", [(s["curve"], "h"), (s["marker"], "h")], pad=0.02)
+    fit_axes(p, "y", [(s[k], c) for k, c in (("curve", "ratio"), ("curve", "fixed"),
+                                             ("marker", "ratio"))] + [(s["one"], "y")])
     p.add_layout(Span(location=1.0, dimension="width", line_color="#888888", line_dash="dotted"))
     p.line(x="h", y="ratio", source=s["curve"], line_color=COLOURS["closed_loop"], line_width=2,
            legend_label="LQR redesigned per h")

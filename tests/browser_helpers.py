@@ -283,7 +283,10 @@ LATENCY_HARNESS_JS = """() => {
     for (const d of all) {
       if (H.docs.has(d)) continue;
       H.docs.add(d);
-      d.on_change(() => { H.pending += 1; });
+      // also the changes a document applies from the kernel (see kit.plots.QUIET_PATCHES_JS)
+      const heard = () => { H.pending += 1; };
+      heard.rb_all_events = true;
+      d.on_change(heard);
     }
   };
   const frame = () => {
@@ -433,4 +436,87 @@ NOTICES_AND_RANGES_JS = """() => {
     }
   }
   return {notices: notices, bad_ranges: bad};
+}"""
+
+
+#: JavaScript run before a page loads: every WebSocket frame, both ways, with its time
+#: (``performance.now()``, the clock of input events) and size, kept for :data:`FRAMES_JS`.
+WS_LOG_INIT_JS = """(() => {
+  if (window.__rbWsLog) return;
+  const log = window.__rbWsLog = [];
+  const Orig = window.WebSocket;
+  const size = (d) => (d == null ? 0 : (d.byteLength !== undefined ? d.byteLength :
+                       (d.size !== undefined ? d.size : d.length)));
+  class Logged extends Orig {
+    constructor(...a) {
+      super(...a);
+      this.addEventListener('message', (e) => {
+        log.push({dir: 'in', t: performance.now(), size: size(e.data), data: e.data});
+      });
+    }
+    send(d) {
+      log.push({dir: 'out', t: performance.now(), size: size(d), data: d});
+      return super.send(d);
+    }
+  }
+  window.WebSocket = Logged;
+})();"""
+
+#: JavaScript: the kernel messages of the WebSocket log from index ``from`` (JSON or the
+#: binary v1 kernel protocol), each as {dir, t, size, kind}; kind is the message type, and
+#: for a widget message its method and, for a figure patch, "patch" (kernel to page) or
+#: "jsevent" (page to kernel).
+FRAMES_JS = """(from) => {
+  const td = new TextDecoder();
+  const out = [];
+  for (const r of (window.__rbWsLog || []).slice(from)) {
+    let msg = null;
+    try {
+      if (typeof r.data === 'string') msg = JSON.parse(r.data);
+      else {
+        const dv = new DataView(r.data);
+        const n = Number(dv.getBigUint64(0, true));
+        const offs = [];
+        for (let i = 0; i < n; i++) offs.push(Number(dv.getBigUint64(8 * (i + 1), true)));
+        const part = (i) => td.decode(new Uint8Array(r.data, offs[i],
+            (i + 1 < n ? offs[i + 1] : r.data.byteLength) - offs[i]));
+        msg = {header: JSON.parse(part(1)), content: JSON.parse(part(4))};
+      }
+    } catch (e) { msg = {}; }
+    const h = msg.header || {}, c = msg.content || {}, d = c.data || {};
+    let kind = h.msg_type || '?';
+    if (kind === 'comm_msg') {
+      kind += ':' + (d.method || '');
+      const cc = d.content || {};
+      if (cc.msg) kind += ':' + cc.msg;
+      if (cc.event) kind += ':' + cc.event;
+    }
+    out.push({dir: r.dir, t: r.t, size: r.size, kind: kind});
+  }
+  return out;
+}"""
+
+#: JavaScript: wrap BokehJS's patch application and plot painting to time them (once a page).
+BOKEH_TIMING_JS = """() => {
+  const B = window.Bokeh;
+  if (!B || !B.require) return false;
+  if (window.__rbBkLog) return true;
+  const log = window.__rbBkLog = [];
+  const {Document} = B.require('document');
+  const apply = Document.prototype.apply_json_patch;
+  Document.prototype.apply_json_patch = function (patch, buffers) {
+    const t = performance.now();
+    try { return apply.call(this, patch, buffers); }
+    finally { log.push({what: 'patch', t: t, ms: performance.now() - t}); }
+  };
+  try {
+    const PV = B.require('models/plots/plot_canvas').PlotView;
+    const paint = PV.prototype._actual_paint;
+    PV.prototype._actual_paint = function () {
+      const t = performance.now();
+      try { return paint.call(this); }
+      finally { log.push({what: 'paint', t: t, ms: performance.now() - t}); }
+    };
+  } catch (e) { /* another BokehJS layout: patches timed only */ }
+  return true;
 }"""

@@ -184,8 +184,17 @@ def test_failure_panel_live(lab, browser):
         panel.locator("button", has_text="simulate").click()
         r1 = lp.changed("spin", r0, "the time response after 'simulate'")
         assert r1["data"]["t"], "no time response drawn"
+        # the record's horizon (the default) off: the response is out of date, the horizon
+        # slider is live, and a simulation then ends at its value
+        panel.locator(".widget-checkbox").filter(has_text="horizon as in the record").locator(
+            "input").click()
+        r2 = lp.changed("spin", r1, "the time response cleared after the horizon changed")
         _press(panel, "horizon", "ArrowRight")
-        lp.changed("spin", r1, "the time response cleared after the horizon moved")
+        h = float(panel.locator(".widget-slider").filter(has_text=re.compile(
+            r"^horizon")).locator(".noUi-handle").first.get_attribute("aria-valuenow"))
+        panel.locator("button", has_text="simulate").click()
+        r3 = lp.changed("spin", r2, "the time response after 'simulate' with the slider's horizon")
+        assert abs(r3["data"]["t"][-1] - h) < 0.05, (r3["data"]["t"][-1], h)
         # simulate on change
         panel.locator(".widget-checkbox").filter(has_text="simulate on change").locator(
             "input").click()

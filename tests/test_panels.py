@@ -372,3 +372,68 @@ def test_bokehjs_is_served_by_the_extension():
     patterns = [r.matcher.regex.pattern for rule in app.web_app.default_router.rules
                 for r in getattr(rule.target, "rules", [rule])]
     assert any("rotorbook/bokehjs" in p for p in patterns)
+
+
+def test_ranges_follow_the_data_in_the_same_patch(survey, monkeypatch):
+    import json
+
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    sent = _patches(p, monkeypatch)
+    p.set_failed(("front_right",))
+    # one PATCH-DOC holding the data and the ranges fitted in the kernel (the page does not
+    # fit them after drawing, which would cost a second layout and repaint)
+    content = [json.loads(m["payload"]) for m in sent if "payload" in m
+               and '"events"' in str(m["payload"])]
+    assert len(content) == 1
+    attrs = {e.get("attr") for e in content[0]["events"]}
+    assert "data" in attrs or any(e["kind"] == "ColumnDataChanged" for e in content[0]["events"])
+    poles = p.sources["poles"]["closed"].data
+    xr, yr = p.poles_fig.x_range, p.poles_fig.y_range
+    assert xr.start <= min(poles["re"]) and max(poles["re"] + [0.0]) <= xr.end
+    assert yr.start == -yr.end and max(abs(v) for v in poles["im"]) <= yr.end
+    # the circle: one range on both axes of a square frame (round, whole)
+    c = p.circle_fig
+    assert (c.x_range.start, c.x_range.end) == (c.y_range.start, c.y_range.end)
+    assert c.frame_width == c.frame_height
+    r_mm = max(abs(v) for v in p.sources["circle"]["path"].data["x"])
+    assert c.x_range.end >= r_mm
+    thrust = p.thrust_fig.y_range
+    assert thrust.start == 0 and thrust.end >= max(p.sources["thrust"]["bars"].data["limit"])
+
+
+def test_nice_bounds_round_out_and_keep_the_axis_for_small_moves():
+    # steps of 1, 2, 2.5, 5 x 10^k (common practice, no source)
+    assert plots.nice_bounds([0.0, 9.3], pad=0.05, start=0.0) == (0.0, 10.0)
+    assert plots.nice_bounds([-23.3, 0.0], pad=0.1) == (-30.0, 10.0)  # step 10
+    assert plots.nice_bounds([-23.1, 0.0], pad=0.1) == plots.nice_bounds([-23.3, 0.0], pad=0.1)
+    assert plots.nice_bounds([1.0, -3.0], symmetric=True) == (-4.0, 4.0)  # step 2
+    assert plots.nice_bounds([float("nan")]) is None  # no data: the figure keeps its range
+
+
+def test_page_echo_of_a_patch_is_ignored_a_selection_is_taken(survey):
+    pp = PlacementPanel(survey)
+    fw = pp.figure_widget
+    src = pp.sources["hubs"]
+    before = dict(src.data)
+    # jupyter_bokeh's view sends back what it applied: not taken (stale by the time it lands)
+    fw._sync_model(fw, {"event": "jsevent", "kind": "ModelChanged", "model": {"id": src.id},
+                        "attr": "data", "new": {"type": "map", "entries": [["sx", [9.0]]]}}, [])
+    assert dict(src.data) == before
+    sel = pp.sources["cells"].selected
+    fw._sync_model(fw, {"event": "jsevent", "kind": "ModelChanged", "model": {"id": sel.id},
+                        "attr": "indices", "new": [0]}, [])
+    assert list(sel.indices) == [0]
+
+
+def test_failure_simulation_uses_the_record_horizon_by_default(survey):
+    from kit.analysis.simulate import simulate_failure
+
+    p = FailurePanel(survey, failed=("front_left",), simulate=False)
+    assert p.record_horizon.value and p.horizon.disabled and p.t_end_s() is None
+    p.simulate()
+    ref = simulate_failure(p.vehicle, ("front_left",))  # what the record's analysis runs
+    assert p.sim.t[-1] == pytest.approx(ref.t[-1])
+    assert "simulated" in p.sim_status.value
+    assert "the record's horizon" in html.unescape(p.readout_html)
+    p.record_horizon.value = False  # the slider's horizon; the response is out of date
+    assert not p.horizon.disabled and p.t_end_s() == p.horizon.value and p.sim is None

@@ -109,6 +109,13 @@ class Panel:
             children.append(self.figure_widget)
         children.append(self._readout)
         self.widget = w.VBox(children, layout=w.Layout(width="100%"))
+        # figures whose ranges follow their data (kit.plots.fit_axes), set by refit()
+        self._fitted = [m for m in self.layout.references() if getattr(m, "_rb_fit", None)]
+
+    def refit(self) -> None:
+        """Fit the ranges of the panel's figures to their data (no event when unchanged)."""
+        for fig in getattr(self, "_fitted", ()):
+            plots.refit(fig)
 
     def _observe(self, *widgets) -> None:
         for wd in widgets:
@@ -136,8 +143,9 @@ class Panel:
     def refresh(self) -> None:
         """Recompute the view from the controls, update the figures and the readouts.
 
-        The figure changes of one refresh reach the page as one message (see
-        :class:`LiveFigure`); ``last_update_s`` is the kernel's share of the wait.
+        The figure changes of one refresh, data and ranges together, reach the page as one
+        message (see :class:`LiveFigure`), sent before the readouts change;
+        ``last_update_s`` is the kernel's share of the wait.
         """
         t0 = time.perf_counter()
         fw = self.figure_widget
@@ -151,11 +159,12 @@ class Panel:
                 self.message = str(exc) if isinstance(exc, ValueError) else (
                     f"{type(exc).__name__}: {exc}")
                 self.readout_html = ""
+            self.refit()
             self.stale_message = design_file_changed(getattr(self, "vehicle", None))
-            self._show_text()
         finally:
             if fw is not None:
                 fw.flush()
+        self._show_text()
         self.refresh_count += 1
         self.last_update_s = time.perf_counter() - t0
 
@@ -247,6 +256,13 @@ class LiveFigure:
 
     _cls = None
 
+    #: Properties the page may change and the kernel takes (a selection made on a figure).
+    #: Every other change from the page is an echo: jupyter_bokeh's view sends back each
+    #: change it applied from a patch (the data just sent, the ranges BokehJS fitted), and
+    #: taking it would cost the kernel a decode per patch and, arriving after a newer
+    #: update, would put stale values into the kernel's document.
+    FROM_PAGE = frozenset({"indices", "line_indices", "multiline_indices", "image_indices"})
+
     @classmethod
     def of(cls, layout):
         if cls._cls is None:
@@ -280,6 +296,12 @@ def _make_live_figure_class():
                 self._held.append(event)
                 return
             self._send_events([event])
+
+        def _sync_model(self, model, content, buffers) -> None:
+            if (content.get("event") == "jsevent" and content.get("kind") == "ModelChanged"
+                    and content.get("attr") not in LiveFigure.FROM_PAGE):
+                return
+            super()._sync_model(model, content, buffers)
 
         def _send_events(self, events) -> None:
             # the message layout of jupyter_bokeh.BokehModel._document_patched, for a list

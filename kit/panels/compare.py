@@ -349,6 +349,7 @@ class ComparePanel(Panel):
         self.thrust_fig, s2 = thrust_overlay_figure(rotor_union(cmp))
         self.poles_fig, s3 = poles_overlay_figure()
         self.sources = {"quantity": s1, "thrust": s2, "poles": s3}
+        self._fit_ranges()
         self.layout = plots.in_document(column(self.quantity_fig,
                                                row(self.thrust_fig, self.poles_fig)))
         options = numeric_quantities(cmp) or [CASE_QUANTITIES[1][0]]
@@ -362,6 +363,23 @@ class ComparePanel(Panel):
         self._build_widget([w.HBox([self.quantity, self.case])])
         self.view: CompareView | None = None
         self.refresh()
+
+    def _fit_ranges(self) -> None:
+        """Ranges set in the kernel with the data (one patch, one repaint; see kit.plots)."""
+        from bokeh.models import Range1d
+
+        s1, s2, s3 = (self.sources[k] for k in ("quantity", "thrust", "poles"))
+        zero = plots._source(y=[0.0])  # the bars' base stays in view
+        self.quantity_fig.y_range = Range1d(0, 1)
+        plots.fit_axes(self.quantity_fig, "y", [(s1["bars"], "value"), (zero, "y")])
+        self.thrust_fig.y_range = Range1d(0, 1)
+        plots.fit_axes(self.thrust_fig, "y", [(s2["bars"], "thrust"), (s2["bars"], "limit")],
+                       start=0.0)
+        self.poles_fig.x_range, self.poles_fig.y_range = Range1d(-1, 1), Range1d(-1, 1)
+        plots.fit_axes(self.poles_fig, "x", [(s3[k], "re") for k in REVS] + [(zero, "y")],
+                       pad=0.1)
+        plots.fit_axes(self.poles_fig, "y", [(s3[k], "im") for k in REVS] + [(zero, "y")],
+                       pad=0.1, symmetric=True)
 
     def control_values(self):
         return [("quantity to compare", self.quantity.value),

@@ -10,7 +10,11 @@ scale is fixed by the weight), "least effort" picks the member of smallest ``sum
 The nonlinear time response (:func:`kit.analysis.simulate.simulate_failure`) costs 0.2 to 1.5 s,
 so a slider change marks it out of date and the "simulate" button (or "simulate on change")
 recomputes it; the panel simulates once when it is built, so a record shows it. The button is
-disabled while the simulation runs.
+disabled while the simulation runs, and a line beside it says what runs and, after, how long it
+took. Its horizon is by default the one the record's recovery simulation uses (the failure
+time, the detection delay, then a number of the slowest time constants:
+:func:`kit.analysis.simulate.horizon_s`); unticking "horizon as in the record" uses the horizon
+slider instead.
 
 Failed rotors are chosen with one checkbox per rotor. In thrust-ratio mode a change of the
 failed set resets the ratio sliders to the least-effort equilibrium of the new set (a rotor
@@ -37,7 +41,7 @@ LEAST_EFFORT = "least effort"
 RATIOS = "thrust ratios"
 #: Cached case results per panel (a slider revisiting a value is instant).
 CACHE_SIZE = 128
-#: Default horizon of the time response, s.
+#: Horizon slider's starting value, s (used when the record's horizon is not).
 DEFAULT_HORIZON_S = 3.0
 
 
@@ -123,7 +127,7 @@ class FailurePanel(Panel):
     """Failed rotors and free directions in; equilibrium, poles, risk and time response out."""
 
     def __init__(self, design, failed=None, thrust_ratio: dict | None = None,
-                 simulate: bool = True, horizon_s: float = DEFAULT_HORIZON_S) -> None:
+                 simulate: bool = True, horizon_s: float | None = None) -> None:
         import ipywidgets as w
         from bokeh.layouts import column, row
 
@@ -171,15 +175,22 @@ class FailurePanel(Panel):
             top = max(thrust_ratio.values())
             for n, r in thrust_ratio.items():
                 self.ratios[n].value = float(r) / top
-        self.horizon = w.FloatSlider(value=horizon_s, min=0.5, max=10.0, step=0.5,
-                                     description="horizon (s)", continuous_update=False,
-                                     style=style)
+        # horizon_s None: the record's horizon (a function of the case, see horizon_s)
+        self.record_horizon = w.Checkbox(value=horizon_s is None, indent=False,
+                                         description="horizon as in the record",
+                                         layout=w.Layout(width="auto"))
+        self.horizon = w.FloatSlider(value=DEFAULT_HORIZON_S if horizon_s is None else horizon_s,
+                                     min=0.5, max=30.0, step=0.5, description="horizon (s)",
+                                     continuous_update=False, style=style,
+                                     disabled=horizon_s is None)
+        self.sim_status = w.HTML("")
         self.simulate_button = w.Button(description="simulate", icon="play",
                                         tooltip="run the nonlinear simulation of the failure")
         self.auto_simulate = w.Checkbox(value=False, description="simulate on change",
                                         indent=False)
         self.controls = {**{f"failed:{n}": b for n, b in self.failed_boxes.items()},
                          "mode": self.mode, "horizon": self.horizon,
+                         "record_horizon": self.record_horizon,
                          "auto_simulate": self.auto_simulate,
                          **{f"ratio:{n}": s for n, s in self.ratios.items()}}
         self.view: FailureView | None = None
@@ -187,6 +198,7 @@ class FailurePanel(Panel):
         self.sim_message = "not simulated yet"
         self.last_simulate_s = 0.0
         self._observe(self.horizon, *self.ratios.values())
+        self.record_horizon.observe(self._on_record_horizon, names="value")
         for b in self.failed_boxes.values():
             b.observe(self._on_failed, names="value")
         self.mode.observe(self._on_mode, names="value")
@@ -196,7 +208,9 @@ class FailurePanel(Panel):
                             layout=w.Layout(width="180px"))
         self._build_widget([
             w.HBox([failed_box, w.VBox([self.mode, ratio_box])]),
-            w.HBox([self.horizon, self.simulate_button, self.auto_simulate]),
+            w.HBox([self.record_horizon, self.horizon, self.simulate_button,
+                    self.auto_simulate]),
+            self.sim_status,
         ])
         self._auto_once = simulate
         self.refresh()
@@ -249,6 +263,14 @@ class FailurePanel(Panel):
         else:
             self.refresh()
 
+    def _on_record_horizon(self, change) -> None:
+        self.horizon.disabled = bool(change["new"])
+        self.refresh()
+
+    def t_end_s(self) -> float | None:
+        """End time of the simulation, in s (None: the record's horizon for the case)."""
+        return None if self.record_horizon.value else float(self.horizon.value)
+
     def _on_mode(self, change) -> None:
         if change["new"] == RATIOS:
             with self.hold():
@@ -262,7 +284,8 @@ class FailurePanel(Panel):
         ratio = self.thrust_ratio()
         if ratio is not None:
             rows.append(("thrust ratios", ", ".join(f"{k} {v:.2f}" for k, v in ratio.items())))
-        rows.append(("simulation horizon", plots.fmt(self.horizon.value, 3, "s")))
+        rows.append(("simulation horizon", "as in the record" if self.t_end_s() is None
+                     else plots.fmt(self.horizon.value, 3, "s")))
         return rows
 
     # -- computing ------------------------------------------------------------------------
@@ -331,6 +354,7 @@ class FailurePanel(Panel):
         for k, data in plots.response_data(None, self.vehicle.n).items():
             plots.set_data(self.sources["response"][k], data)
         self._sim_notice()
+        self.sim_status.value = self._sim_status_html()
 
     def _sim_notice(self) -> None:
         text = "" if self.sim is not None else (self.sim_message or "not simulated")
@@ -344,7 +368,7 @@ class FailurePanel(Panel):
         t0 = time.perf_counter()
         failed = self.failed_set()
         try:
-            self.sim = simulate_failure(self.vehicle, failed, t_end=float(self.horizon.value),
+            self.sim = simulate_failure(self.vehicle, failed, t_end=self.t_end_s(),
                                         thrust_ratio=self.thrust_ratio())
             self.sim_message = ""
         except (EquilibriumNotFound, ValueError) as exc:
@@ -354,6 +378,7 @@ class FailurePanel(Panel):
         for k, data in plots.response_data(self.sim, self.vehicle.n).items():
             plots.set_data(self.sources["response"][k], data)
         self._sim_notice()
+        self.sim_status.value = self._sim_status_html()
 
     def simulate(self) -> None:
         """Run the nonlinear simulation for the current controls and show it.
@@ -362,6 +387,11 @@ class FailurePanel(Panel):
         """
         b = self.simulate_button
         b.disabled, b.description = True, "simulating..."
+        failed = ", ".join(self.failed_set()) or "none"
+        horizon = ("the record's horizon" if self.t_end_s() is None
+                   else f"{plots.fmt(self.t_end_s(), 3, 's')}")
+        self.sim_status.value = (f"<span class='rb-note'>simulating the failure of {failed} "
+                                 f"over {horizon}...</span>")
         fw = self.figure_widget
         if fw is not None:
             fw.hold()
@@ -372,11 +402,19 @@ class FailurePanel(Panel):
             else:
                 self._simulate_now()
             self.readout_html = self.readouts()
-            self._show_text()
+            self.refit()
         finally:
             if fw is not None:
                 fw.flush()
             b.disabled, b.description = False, "simulate"
+        self._show_text()
+        self.sim_status.value = self._sim_status_html()
+
+    def _sim_status_html(self) -> str:
+        if self.sim is None:
+            return f"<span class='rb-note'>{plots.html_escape(self.sim_message)}</span>"
+        return (f"<span class='rb-note'>simulated {plots.fmt(float(self.sim.t[-1]), 3, 's')} "
+                f"in {plots.fmt(self.last_simulate_s, 2, 's')}</span>")
 
     # -- readouts -------------------------------------------------------------------------
 
@@ -412,6 +450,8 @@ class FailurePanel(Panel):
         if self.sim is not None:
             s = self.sim
             sim_rows += [
+                ("simulated time", plots.fmt(float(s.t[-1]), 3, "s")
+                 + (" (the record's horizon)" if self.t_end_s() is None else "")),
                 ("converged", plots.fmt(s.converged)),
                 ("final spin rate", plots.fmt(s.final_spin_rate_rad_s, 3, "rad/s")),
                 ("peak body rates p, q, r", ", ".join(plots.fmt(x, 3) for x in

@@ -12,10 +12,17 @@ while updating (equal when nothing collapses).
 
 Targets: median <= 50 ms and max <= 150 ms per control; printed as ratios (1.00 = on target),
 never a failure. "simulate" and "compute map" show progress and are not timed.
+
+A second table breaks each change down (medians per change): kernel messages to the page and
+back and their bytes, counted on the page's WebSocket (status messages left out), of which
+figure patches and page-to-kernel figure events; BokehJS's time applying patches; the number
+of plot paints and their time; the time from the input to the first patch applied. Run with
+notebook names (``hover.ipynb``) to time only those.
 """
 
 from __future__ import annotations
 
+import math
 import re
 import statistics
 import sys
@@ -27,9 +34,12 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "tests"))
 
 from browser_helpers import (  # noqa: E402
+    BOKEH_TIMING_JS,
     CHROMIUM,
     CHROMIUM_ARGS,
+    FRAMES_JS,
     KERNEL_EXEC_JS,
+    WS_LOG_INIT_JS,
     measure,
     open_and_run,
     panel_locator,
@@ -113,19 +123,43 @@ def run_panel(page, title: str, controls) -> list[tuple]:
     panel.wait_for(timeout=20_000)
     page.wait_for_timeout(500)
     rows = []
+    page.evaluate(BOKEH_TIMING_JS)
     for label, make in controls:
-        samples, kms, hmin, hmax = [], [], float("inf"), 0.0
+        samples, kms, hmin, hmax, parts = [], [], float("inf"), 0.0, []
         for k in range(REPEATS):
+            i0 = page.evaluate("() => (window.__rbWsLog || []).length")
+            b0 = page.evaluate("() => (window.__rbBkLog || []).length")
             r = measure(page, panel, make(panel, k))
             if r["ms"] is not None:
                 samples.append(r["ms"])
+                parts.append(breakdown(page, i0, b0))
                 km = kernel_ms(page, PANEL_CLASSES[title])
                 if km is not None:
                     kms.append(km)
             hmin, hmax = min(hmin, r["hmin"]), max(hmax, r["hmax"])
             page.wait_for_timeout(150)
-        rows.append((f"{title.lower()}: {label}", samples, kms, hmin, hmax))
+        rows.append((f"{title.lower()}: {label}", samples, kms, hmin, hmax, parts))
     return rows
+
+
+def breakdown(page, i0: int, b0: int) -> dict:
+    """Messages, bytes, patch and paint times of one change (from the logs' indices i0, b0)."""
+    t0 = page.evaluate("() => window.__rbLatency.t0")
+    frames = [f for f in page.evaluate(FRAMES_JS, i0) if not f["kind"].startswith("status")]
+    bk = page.evaluate(f"() => (window.__rbBkLog || []).slice({b0})")
+    ins = [f for f in frames if f["dir"] == "in"]
+    outs = [f for f in frames if f["dir"] == "out"]
+    patches = [b for b in bk if b["what"] == "patch"]
+    paints = [b for b in bk if b["what"] == "paint"]
+    return {
+        "in_n": len(ins), "in_kb": sum(f["size"] for f in ins) / 1e3,
+        "patch_msgs": sum(1 for f in ins if f["kind"].endswith(":patch")),
+        "out_n": len(outs), "out_kb": sum(f["size"] for f in outs) / 1e3,
+        "echo_msgs": sum(1 for f in outs if f["kind"].endswith(":jsevent")),
+        "apply_ms": sum(b["ms"] for b in patches),
+        "paints": len(paints), "paint_ms": sum(b["ms"] for b in paints),
+        "first_patch_ms": (patches[0]["t"] - t0) if patches and t0 is not None else math.nan,
+    }
 
 
 def main(only=()) -> int:
@@ -172,6 +206,7 @@ def main(only=()) -> int:
                         if only and nb not in only:
                             continue
                         ctx = browser.new_context(viewport={"width": 1400, "height": 1600})
+                        ctx.add_init_script(WS_LOG_INIT_JS)
                         page = ctx.new_page()
                         t0 = time.monotonic()
                         try:
@@ -188,6 +223,14 @@ def main(only=()) -> int:
                         print(f"{nb}: opened and run in {time.monotonic() - t0:.1f} s",
                               flush=True)
                         for title, controls in panels:
+                            if title == "Rotor failure":
+                                # the horizon slider is live once the record's horizon is off
+                                box = panel_locator(page, title).first.locator(
+                                    ".widget-checkbox").filter(
+                                    has_text="horizon as in the record").locator("input")
+                                if box.count() and box.first.is_checked():
+                                    box.first.click()
+                                    page.wait_for_timeout(1500)
                             rows += run_panel(page, title, controls)
                             if title == "Rotor failure":
                                 # ratio sliders: in thrust-ratio mode (left there by the toggle
@@ -209,7 +252,7 @@ def main(only=()) -> int:
     print(f"\n{'panel: control':34s} {'n':>2s} {'median ms':>9s} {'max ms':>8s} "
           f"{'kernel med':>10s} {'browser med':>11s} {'median/50':>9s} {'max/150':>8s} "
           f"{'height min..max px':>20s}")
-    for label, s, kms, hmin, hmax in rows:
+    for label, s, kms, hmin, hmax, _parts in rows:
         if not s:
             print(f"{label:34s}  0  (no figure change seen)")
             continue
@@ -218,6 +261,22 @@ def main(only=()) -> int:
         print(f"{label:34s} {len(s):2d} {med:9.0f} {mx:8.0f} {kmed:10.1f} {med - kmed:11.0f} "
               f"{med / MEDIAN_TARGET_MS:9.2f} {mx / MAX_TARGET_MS:8.2f} "
               f"{hmin:9.0f}..{hmax:<9.0f}")
+    print("\nper change (medians): kernel -> page messages and kB (of which figure-patch "
+          "messages),\npage -> kernel messages and kB (of which figure events sent back), "
+          "BokehJS patch apply ms,\nplot paints and their ms, input to first patch applied ms")
+    print(f"{'panel: control':34s} {'in n':>5s} {'in kB':>6s} {'patch':>5s} {'out n':>5s} "
+          f"{'out kB':>6s} {'back':>5s} {'apply':>6s} {'paints':>6s} {'paint ms':>8s} "
+          f"{'1st patch':>9s}")
+    for label, _s, _k, _a, _b, parts in rows:
+        if not parts:
+            continue
+
+        def m(key, parts=parts):
+            vals = [p[key] for p in parts if not math.isnan(p[key])]
+            return statistics.median(vals) if vals else math.nan
+        print(f"{label:34s} {m('in_n'):5.0f} {m('in_kb'):6.1f} {m('patch_msgs'):5.0f} "
+              f"{m('out_n'):5.0f} {m('out_kb'):6.1f} {m('echo_msgs'):5.0f} {m('apply_ms'):6.1f} "
+              f"{m('paints'):6.0f} {m('paint_ms'):8.1f} {m('first_patch_ms'):9.0f}")
     return 0
 
 

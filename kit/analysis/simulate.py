@@ -511,6 +511,8 @@ SPEED_TOL_M_S = 0.1
 #: Horizon of a flown run, in multiples of the longest time constant (slowest closed-loop pole
 #: of the inner and outer loops, and the spin-up time constant J_zz / gamma_z).
 HORIZON_TIME_CONSTANTS = 6.0
+#: Longest run after the failure, in s (5 min: far past any failure transient worth flying).
+HORIZON_MAX_S = 300.0
 #: Outer loops: natural frequency of the height loop as a fraction of the slowest attitude pole's
 #: decay rate, its ceiling (rad/s), the horizontal loop at 0.75 of it, damping ratio 1, and the
 #: largest tilt of the commanded thrust direction (common practice, no source).
@@ -876,7 +878,9 @@ def horizon_s(veh: Vehicle, ctl_hover: C.LinearControl, ctl_fail: C.LinearContro
     """Run length after the failure and the longest time constant it is made of, in s.
 
     ``HORIZON_TIME_CONSTANTS`` times the longest of: the slowest attitude pole (hover and
-    relaxed hover), the slowest outer-loop pole and the spin-up time constant ``J_zz / gamma_z``.
+    relaxed hover), the slowest outer-loop pole and the spin-up time constant ``J_zz / gamma_z``,
+    at most ``HORIZON_MAX_S`` (a nearly undamped spin-up or pole would otherwise ask for a run
+    of years; a run cut there that has not settled fails "recovery converged").
 
     Parameters
     ----------
@@ -898,7 +902,7 @@ def horizon_s(veh: Vehicle, ctl_hover: C.LinearControl, ctl_fail: C.LinearContro
         if gz > 0:
             taus.append(veh.mp.inertia_kg_m2[2, 2] / gz)
     longest = max(taus) if taus else 1.0
-    return HORIZON_TIME_CONSTANTS * longest, longest
+    return min(HORIZON_TIME_CONSTANTS * longest, HORIZON_MAX_S), longest
 
 
 def simulate_failure(veh: Vehicle, failed=(), t_fail: float = 0.5,

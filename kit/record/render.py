@@ -50,8 +50,8 @@ DISPLAY_PRIORITY = [
 
 CAUTIONS = (
     "An analysis made with this kit is not a flight clearance. It rests on stated models (rigid "
-    "body, rotor speed following the command at once, a simple drag-torque law) that a real "
-    "vehicle departs from.",
+    "body, rotor thrust following its command with the first-order lag the design states, or "
+    "at once when it states none, a simple drag-torque law) that a real vehicle departs from.",
     "Flight with failed rotors can hurt people. Flight-test failure cases tethered or in a net, "
     "with a kill switch, away from people.",
     "Follow your local aviation rules and licensed practice.",

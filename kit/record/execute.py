@@ -243,7 +243,8 @@ class Kernel:
 
 
 def kernel_env() -> dict[str, str]:
-    """The kernel's environment: this one, with a fixed hash seed and simple Bokeh ids.
+    """The kernel's environment: this one, with a fixed hash seed, simple Bokeh ids and one
+    BLAS thread.
 
     BokehJS resources are left as configured: the executed notebook may point at a CDN for
     JupyterLab's sake; the HTML record drops that loader and inlines BokehJS itself.
@@ -254,6 +255,9 @@ def kernel_env() -> dict[str, str]:
         "BOKEH_SIMPLE_IDS": "yes",
         "PYDEVD_DISABLE_FILE_VALIDATION": "1",
     })
+    # one BLAS thread (small matrices; see kit.cli), unless the caller set a number
+    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+        env.setdefault(var, "1")
     return env
 
 

@@ -4,6 +4,7 @@ The kernel-starting tests share two recordings made once per module (about 15 s 
 carry the ``slow`` marker. Fixture workbooks are in tests/fixtures/record/.
 """
 
+import hashlib
 import json
 import re
 from pathlib import Path
@@ -174,7 +175,8 @@ def test_record_files_and_result(recorded):
 @kernel
 def test_verdict_and_matrix_first_then_header_then_table_once_and_cautions_last(demo_html):
     body = _body(demo_html)
-    for text in ("Demo survey quad", "<td>A</td>", "dcf5aa1c062744d5", "rotorbook 0.1.0",
+    sha = hashlib.sha256(DESIGN.read_bytes()).hexdigest()  # the design file's own bytes
+    for text in ("Demo survey quad", "<td>A</td>", sha, "rotorbook 0.1.0",
                  "demo author", "demo checker", "Invented example: H-frame survey quad"):
         assert text in body
     assert re.search(r"<th>Date \(UTC\)</th><td>\d{4}-\d\d-\d\d</td>", body)

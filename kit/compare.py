@@ -869,7 +869,8 @@ class Comparison:
             for c in self.checks_changed:
                 lines.append(f"  {c['change']:<18} {c['case'] + ': ' if c['case'] else ''}"
                              f"{c['name']}  {num(c['old_value'])} -> {num(c['new_value'])} "
-                             f"(limit {c['relation']} {num(c['limit'])} {c['unit']})".rstrip())
+                             + f"(limit {c['relation']} {num(c['limit'])} {c['unit']}".rstrip()
+                             + ")")
         if self.checks_eroding:
             lines.append(f"checks eroding (margin shrank by more than {100 * self.erosion:g} %):")
             for c in self.checks_eroding:

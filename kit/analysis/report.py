@@ -470,7 +470,7 @@ class DesignReport:
         lines.append(f"  checks: {len(self.checks) - len(failed)} of {len(self.checks)} passed")
         for c in failed:
             lines.append(f"    FAIL {c.case + ': ' if c.case else ''}{c.name} = {num(c.value)} "
-                         f"(limit {c.relation} {num(c.limit)} {c.unit})"
+                         + f"(limit {c.relation} {num(c.limit)} {c.unit}".rstrip() + ")"
                          + (f": {c.note}" if c.note else ""))
         sims = [c for c in self.worst_first if c.transient is not None]
         if sims:

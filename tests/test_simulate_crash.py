@@ -142,3 +142,13 @@ def test_infinite_lag_margin_passes_its_check():
     assert not CH.at_least("lag margin", math.nan, 0.03, "s").passed
     assert not CH.at_least("lag margin", -math.inf, 0.03, "s").passed
     assert not CH.at_most("height lost in recovery", math.inf, 5.0, "m").passed
+
+
+def test_rates_text_prints_rounding_noise_as_zero():
+    # a symmetric pair failure's roll and yaw peaks are ~1e-15 beside 7.38 rad/s of pitch:
+    # rounding noise, printed as 0 (common practice, no source)
+    from kit.analysis.simulate import rates_text
+
+    assert rates_text([3.16e-15, 7.38, 1.05e-15]) == "0, 7.38, 0"
+    assert rates_text([6.17, 3.87, 0.287]) == "6.17, 3.87, 0.287"
+    assert rates_text([0.0, 0.0, 0.0]) == "0, 0, 0"

@@ -26,7 +26,7 @@ from kit.analysis.hover import Hover, analyse_hover
 from kit.analysis.htmltable import num, table
 from kit.analysis.montecarlo import GustMonteCarlo, gust_monte_carlo
 from kit.analysis.risk import SaturationRisk, saturation_risk
-from kit.analysis.simulate import SimulationResult, simulate_failure
+from kit.analysis.simulate import SimulationResult, rates_text, simulate_failure
 from kit.analysis.spin import (
     AXIS_NAMES,
     SpinAxisAlignment,
@@ -281,7 +281,7 @@ def transients_html(cases) -> str:
                      tr["height_lost_m"], tr["largest_horizontal_excursion_m"],
                      tr["time_to_settle_s"] if math.isfinite(tr["time_to_settle_s"])
                      else "not settled", tr["time_saturated_s"],
-                     ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])))
+                     rates_text(tr["peak_body_rate_rad_s"])))
     return table(head, rows, "Recovery from each failure, worst first (nonlinear, flown)")
 
 

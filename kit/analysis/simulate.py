@@ -176,7 +176,7 @@ def transient_rows(tr: dict) -> list[tuple[str, object]]:
          else settle),
         ("time a working rotor is saturated (s)", tr["time_saturated_s"]),
         ("peak body rates p, q, r (rad/s)",
-         ", ".join(f"{v:.3g}" for v in tr["peak_body_rate_rad_s"])),
+         rates_text(tr["peak_body_rate_rad_s"])),
         ("not settled", ", ".join(tr["not_settled"]) or "-"),
         ("crashed", f"yes, at t = {tr['crash_time_s']:.3g} s" if tr.get("crashed") else "no"),
     ]
@@ -379,7 +379,7 @@ class SimulationResult:
             ("final spin rate (rad/s)", d["final_spin_rate_rad_s"]),
             ("equilibrium spin rate (rad/s)", d["equilibrium_spin_rate_rad_s"]),
             ("peak body rates p, q, r (rad/s)",
-             ", ".join(f"{v:.3g}" for v in d["peak_body_rate_rad_s"])),
+             rates_text(d["peak_body_rate_rad_s"])),
             ("altitude change at end (m)", d["final_altitude_change_m"]),
         ]
         rows += [(f"peak thrust {n} (N)", f"{v:.3g} of {d['max_thrust_n'][n]:.3g}")
@@ -871,6 +871,13 @@ def _fly(flight: _Flight, segments: list[_Segment], omega0, n0, f0, rtol, max_st
         y[6:10] /= np.linalg.norm(y[6:10])
     return (np.concatenate(ts), np.vstack(ys), np.concatenate(segs), ok, message, nfev,
             t_crash)
+
+
+def rates_text(rates) -> str:
+    """Body rates as text, 3 significant digits; an entry below 1e-9 of the largest prints as 0
+    (rounding noise of a symmetric case, e.g. 3e-15 beside 7.38 rad/s)."""
+    big = max((abs(float(v)) for v in rates), default=0.0)
+    return ", ".join("0" if abs(float(v)) <= 1e-9 * big else f"{float(v):.3g}" for v in rates)
 
 
 def horizon_s(veh: Vehicle, ctl_hover: C.LinearControl, ctl_fail: C.LinearControl | None,

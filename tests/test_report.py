@@ -119,3 +119,26 @@ def test_cli_sweep_summary_json_and_bad_options(capsys):
         assert cli.main(["sweep", survey, *argv]) == 2
         err = capsys.readouterr().err
         assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_a_working_rotor_below_its_idle_thrust_fails_the_thrust_limits_check():
+    # A balanced quad hovers at m g / 4 per rotor (derived exact relation); with an idle thrust
+    # above that, the point is outside the rotors' limits: the check fails and names the rotors.
+    import dataclasses
+
+    from kit.analysis.report import analyse_case
+    from kit.analysis.vehicle import Vehicle
+    from kit.models import ring_design
+
+    d = ring_design(mass_kg=0.5)
+    quarter = 0.5 * 9.80665 / 4
+    high = dataclasses.replace(d, rotors=tuple(dataclasses.replace(r, min_thrust_n=1.2 * quarter)
+                                               for r in d.rotors))
+    low = dataclasses.replace(d, rotors=tuple(dataclasses.replace(r, min_thrust_n=0.8 * quarter)
+                                              for r in d.rotors))
+    bad = analyse_case(Vehicle.from_design(high)).checks[0]
+    assert bad.name == "equilibrium within thrust limits" and not bad.passed
+    assert bad.note.startswith("below idle thrust: r0 1.23 N < 1.47 N")
+    assert all(n in bad.note for n in ("r1", "r2", "r3"))
+    good = analyse_case(Vehicle.from_design(low)).checks[0]
+    assert good.passed and good.note == ""

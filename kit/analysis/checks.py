@@ -8,6 +8,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
+import numpy as np
+
 #: Smallest thrust margin (1 - f / f_max) of the busiest rotor in a failure case (common
 #: practice, no source): room for the controller to act.
 MIN_FAILURE_THRUST_MARGIN = 0.05
@@ -63,10 +65,25 @@ def hover_checks(hover, review) -> list[Check]:
     ]
 
 
-def case_checks(eq, ctl, risk, review) -> list[Check]:
-    """Checks of one equilibrium case (no-failure or failure)."""
+def case_checks(eq, ctl, risk, review, min_thrust_n=None) -> list[Check]:
+    """Checks of one equilibrium case (no-failure or failure).
+
+    ``min_thrust_n`` (per rotor, N; None: 0) is the idle thrust a working rotor cannot go
+    below: the operating point is searched within ``0 .. max_thrust_n``, so a point that asks a
+    working rotor for less than its idle thrust fails "equilibrium within thrust limits", with
+    the rotors named in the check's note (the point is still reported, so the figures show why).
+    """
     case = eq.label
-    out = [is_true("equilibrium within thrust limits", eq.found, case)]
+    within = is_true("equilibrium within thrust limits", eq.found, case)
+    if eq.found and min_thrust_n is not None:
+        fmin = np.asarray(min_thrust_n, dtype=float)
+        low = [i for i in np.flatnonzero(eq.working) if eq.thrust_n[i] < fmin[i] * (1 - 1e-9)]
+        if low:
+            why = ", ".join(f"{eq.names[i]} {eq.thrust_n[i]:.3g} N < {fmin[i]:.3g} N"
+                            for i in low)
+            within = replace(within, value=False, passed=False,
+                             note=f"below idle thrust: {why}")
+    out = [within]
     if not eq.found:
         return out
     margin = float((1 - eq.thrust_fraction)[eq.working].min())

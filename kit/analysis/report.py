@@ -237,7 +237,7 @@ def analyse_case(veh: Vehicle, failed=(), thrust_ratio=None, hint=None,
         eq = unsolved(veh, failed, thrust_ratio, _reason(exc))
         ctl = design_control(veh, eq)
         risk = None
-    checks = checks_mod.case_checks(eq, ctl, risk, veh.design.review)
+    checks = checks_mod.case_checks(eq, ctl, risk, veh.design.review, min_thrust_n=fmin)
     sim, note = None, ""
     if simulate and failed:
         try:

@@ -143,7 +143,7 @@ def check_rows(checks) -> list[dict]:
             continue
         rows.append({"name": chk.name, "case": chk.case or "design", "value": chk.value,
                      "limit": chk.limit, "relation": chk.relation, "unit": chk.unit,
-                     "passed": chk.passed, "margin": m})
+                     "passed": chk.passed, "margin": m, "note": str(d.get("note") or "")})
     return rows
 
 
@@ -176,7 +176,9 @@ def verdict_html(rows: list[dict]) -> str:
                 f"check{'s' if len(rows) != 1 else ''} not met; governing case: "
                 f"<b>{e(gov)}</b>.")
         items = "".join(f"<li>{e(r['case'])}: {e(r['name'])} = {e(_value_text(r))} "
-                        f"(limit {e(_limit_text(r))})</li>" for r in failed)
+                        f"(limit {e(_limit_text(r))})"
+                        + (f": {e(r['note'])}" if r.get("note") else "") + "</li>"
+                        for r in failed)
         text += f'<ul style="margin:.3rem 0 0">{items}</ul>'
     else:
         style = f"{_PASS_STYLE};border:2px solid {PASS_COLOURS[0]}"

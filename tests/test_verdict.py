@@ -165,3 +165,14 @@ def test_time_box_stops_a_long_block_and_keeps_an_outer_timer():
         signal.setitimer(signal.ITIMER_REAL, 0.0)
         signal.signal(signal.SIGALRM, old)
     assert not fired
+
+
+def test_verdict_lists_a_failed_check_with_its_note():
+    # a crash or an idle-thrust violation explains the figure: the verdict line carries it
+    import dataclasses
+
+    crash = dataclasses.replace(ck.at_most("height lost in recovery", 20.0, 5.0, "m", "failed: m1"),
+                                note="crashed at t = 2.61 s")
+    page = verdict_html(check_rows([crash, ck.at_least("thrust-to-weight", 2.6, 2.0)]))
+    assert "failed: m1: height lost in recovery = 20 (limit &lt;= 5 m): crashed at t = 2.61 s" \
+        in page

@@ -6,6 +6,8 @@ a synthetic stand file made from known coefficients plus seeded Gaussian noise, 
 3 standard errors (common practice, no source).
 """
 
+import hashlib
+import tomllib
 from pathlib import Path
 
 import numpy as np
@@ -32,6 +34,16 @@ def _csv(w, t, q) -> str:
     rows = "\n".join(f"{float(a)!r},{float(b)!r},{float(c)!r}"
                      for a, b, c in zip(w, t, q, strict=True))
     return "# synthetic stand data (made up for a test)\nspeed_rad_s,thrust_n,torque_n_m\n" + rows
+
+
+def _quad_with_stand(tmp_path: Path, stand_name: str) -> Path:
+    """The demo survey quad with its rotor coefficients replaced by ``stand_data``."""
+    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
+    coeffs = "torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n"
+    assert coeffs in text  # else the replacement below would silently do nothing
+    path = tmp_path / "quad.toml"
+    path.write_text(text.replace(coeffs, f'stand_data = "{stand_name}"\n'), encoding="utf-8")
+    return path
 
 
 def test_fit_equals_curve_fit_and_polyfit():
@@ -66,18 +78,11 @@ def test_synthetic_stand_file_recovers_known_coefficients(tmp_path, seed):
 def test_fitted_values_flow_into_the_design_and_are_recorded(tmp_path):
     w, t, q = _synthetic(5)
     (tmp_path / "stand.csv").write_text(_csv(w, t, q), encoding="utf-8")
-    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
-    text = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
-                        'stand_data = "stand.csv"\n')
-    path = tmp_path / "quad.toml"
-    path.write_text(text, encoding="utf-8")
-    d = design.load(path)
+    d = design.load(_quad_with_stand(tmp_path, "stand.csv"))
     f = d.rotor_fits[0]
     assert f.rotors == ("front_left", "front_right", "rear_right", "rear_left")
     assert all(r.thrust_coeff_n_s2 == f.thrust_coeff_n_s2 for r in d.rotors)
     assert all(r.torque_per_thrust_m == f.torque_per_thrust_m for r in d.rotors)
-    import hashlib
-
     assert f.sha256 == hashlib.sha256((tmp_path / "stand.csv").read_bytes()).hexdigest()
     assert f.to_dict()["fitted"] is True
 
@@ -88,12 +93,8 @@ def test_poor_fit_warns(tmp_path):
     t = K_TRUE * w ** 2 * scatter
     q = KAPPA_TRUE * t
     (tmp_path / "stand.csv").write_text(_csv(w, t, q), encoding="utf-8")
-    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
-    text = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
-                        'stand_data = "stand.csv"\n')
-    path = tmp_path / "quad.toml"
-    path.write_text(text, encoding="utf-8")
-    d = design.from_dict(__import__("tomllib").loads(text), source=str(path))
+    path = _quad_with_stand(tmp_path, "stand.csv")
+    d = design.from_dict(tomllib.loads(path.read_text(encoding="utf-8")), source=str(path))
     assert any("stand data stand.csv: poor fit (thrust fit R^2" in w for w in d.warnings)
 
 
@@ -147,15 +148,10 @@ def test_bad_stand_file_in_a_design_is_a_design_error(tmp_path):
     (tmp_path / "stand.csv").write_text("speed_rad_s,thrust_n\n1,2\n", encoding="utf-8")
     big = tmp_path / "big.csv"
     big.write_text("#" * (rotorfit.MAX_STAND_BYTES + 1), encoding="utf-8")
-    text = (DESIGNS / "survey_quad.toml").read_text(encoding="utf-8")
     for name, fragment in (("stand.csv", "column 'torque_n_m' missing"),
                            ("big.csv", "bytes -> at most"), ("none.csv", "no such file")):
-        t = text.replace("torque_per_thrust_m = 0.016\nthrust_coeff_n_s2 = 8.5e-6\n",
-                         f'stand_data = "{name}"\n')
-        path = tmp_path / "quad.toml"
-        path.write_text(t, encoding="utf-8")
         with pytest.raises(DesignError) as info:
-            design.load(path)
+            design.load(_quad_with_stand(tmp_path, name))
         assert any(p.startswith("rotor 'front_left'.stand_data: ") and fragment in p
                    for p in info.value.problems), info.value.problems
 

@@ -13,7 +13,7 @@ import os
 import sys
 import warnings
 
-from kit import __version__
+from kit import BLAS_THREAD_VARS, __version__
 from kit.errors import (
     AnalysisError,
     DesignError,
@@ -29,7 +29,7 @@ from kit.textsafe import terminal_text
 # the kit's matrices are at most a few dozen rows, and threaded BLAS on a busy machine spends
 # its time waiting (a 4 x 4 Riccati solve took 13 ms instead of 1.2 ms on 2 loaded cores).
 # An explicit setting is kept.
-for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+for _var in BLAS_THREAD_VARS:
     os.environ.setdefault(_var, "1")
 
 EXIT_OK = 0

@@ -36,6 +36,7 @@ from pathlib import Path
 
 import nbformat
 
+from kit import BLAS_THREAD_VARS
 from kit.errors import RecordError, Terminated
 
 PARAMETERS_TAG = "parameters"
@@ -256,7 +257,7 @@ def kernel_env() -> dict[str, str]:
         "PYDEVD_DISABLE_FILE_VALIDATION": "1",
     })
     # one BLAS thread (small matrices; see kit.cli), unless the caller set a number
-    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    for var in BLAS_THREAD_VARS:
         env.setdefault(var, "1")
     return env
 

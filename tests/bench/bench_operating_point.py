@@ -14,9 +14,11 @@ from __future__ import annotations
 
 import os
 
+from kit import BLAS_THREAD_VARS  # imports nothing: numpy is not loaded yet
+
 # one BLAS thread, before numpy loads it: the matrices are small, and threaded BLAS on a busy
 # machine spends its time waiting (as in the sweep's workers)
-for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+for _var in BLAS_THREAD_VARS:
     os.environ.setdefault(_var, "1")
 
 import argparse  # noqa: E402
